@@ -1,0 +1,5 @@
+//! Reading and writing telltale's files.
+
+pub mod write;
+
+pub use write::{HistoryWriter, HistoryWriterOptions};

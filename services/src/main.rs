@@ -1,0 +1,2 @@
+//! The `telltale` binary.
+fn main() {}

@@ -1,0 +1,5 @@
+//! telltale's cross-crate integration tests: one binary, one module per area.
+
+mod golden_changepoint;
+mod golden_robust;
+mod golden_trend_twosample;

@@ -1,0 +1,1 @@
+//! Shared helpers for telltale's cross-crate integration tests.
