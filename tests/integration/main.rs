@@ -3,3 +3,5 @@
 mod golden_changepoint;
 mod golden_robust;
 mod golden_trend_twosample;
+mod io_files;
+mod io_reader;
