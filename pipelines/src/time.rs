@@ -12,10 +12,10 @@ pub fn parse_time(s: &str) -> Result<DateTime<Utc>, String> {
     if let Ok(dt) = DateTime::parse_from_rfc3339(t) {
         return Ok(dt.to_utc());
     }
-    if let Ok(d) = NaiveDate::parse_from_str(t, "%Y-%m-%d") {
-        if let Some(dt) = d.and_hms_opt(0, 0, 0) {
-            return Ok(dt.and_utc());
-        }
+    if let Ok(d) = NaiveDate::parse_from_str(t, "%Y-%m-%d")
+        && let Some(dt) = d.and_hms_opt(0, 0, 0)
+    {
+        return Ok(dt.and_utc());
     }
     Err(format!(
         "cannot read time {s:?}; use RFC 3339 (2026-03-02T10:00:00Z) or a date (2026-03-02)"

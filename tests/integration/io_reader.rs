@@ -10,6 +10,7 @@ fn fixtures() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("fixtures")
 }
 
+#[expect(clippy::unwrap_used, reason = "test helper")]
 fn manifest() -> Value {
     let text = std::fs::read_to_string(fixtures().join("manifest.json")).unwrap();
     serde_json::from_str(&text).unwrap()
@@ -17,6 +18,7 @@ fn manifest() -> Value {
 
 type Got = BTreeMap<String, BTreeMap<String, (Vec<i64>, Vec<Option<f64>>, Vec<bool>)>>;
 
+#[expect(clippy::unwrap_used, reason = "test helper")]
 fn read_all(reader: &HistoryReader) -> (Got, telltale_pipelines::io::ReadSummary) {
     let mut got = Got::new();
     let summary = reader
@@ -33,6 +35,7 @@ fn read_all(reader: &HistoryReader) -> (Got, telltale_pipelines::io::ReadSummary
     (got, summary)
 }
 
+#[expect(clippy::unwrap_used, reason = "test helper")]
 fn expected(entry: &Value) -> Got {
     let mut want = Got::new();
     for (asset, sensors) in entry["expect"].as_object().unwrap() {
@@ -86,6 +89,7 @@ fn hive_tree_is_read_in_path_order_and_later_files_win() {
     assert!(b1.1[2].unwrap() > 1000.0 && b1.1[1].unwrap() < 1000.0, "{b1:?}");
 }
 
+#[expect(clippy::unwrap_used, reason = "test helper")]
 fn read_err(name: &str) -> String {
     let path = fixtures().join("history/bad").join(name);
     let reader = HistoryReader::try_new(&path).unwrap();

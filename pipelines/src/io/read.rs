@@ -386,11 +386,11 @@ impl HistoryReader {
             for rg in 0..md.num_row_groups() {
                 out.total_rgs += 1;
                 let g = md.row_group(rg);
-                if let Some((lo, hi)) = ts_stats(f, rg) {
-                    if hi < self.from_ms || lo >= self.until_ms {
-                        out.pruned += 1;
-                        continue;
-                    }
+                if let Some((lo, hi)) = ts_stats(f, rg)
+                    && (hi < self.from_ms || lo >= self.until_ms)
+                {
+                    out.pruned += 1;
+                    continue;
                 }
                 let asset_range = f.asset_leaf.and_then(|leaf| match g.column(leaf).statistics() {
                     Some(s @ Statistics::ByteArray(_)) if !s.is_min_max_deprecated() => {
@@ -457,7 +457,7 @@ impl HistoryReader {
         match plan {
             Some(index) => {
                 summary.plan = ReadPlan::Stream { index: index.kind() };
-                self.stream(&opened, index, &mut summary, &mut f)?;
+                self.stream(&opened, &index, &mut summary, &mut f)?;
             }
             None => {
                 let buckets = ((selected_rows as usize * SPILL_ROW) / self.memory_budget.max(1))
@@ -523,7 +523,7 @@ impl HistoryReader {
     fn stream<F, E>(
         &self,
         opened: &Opened,
-        index: StreamIndex,
+        index: &StreamIndex,
         summary: &mut ReadSummary,
         f: &mut F,
     ) -> std::result::Result<(), E>
@@ -557,7 +557,7 @@ impl HistoryReader {
                 }
                 if last_of[g] == usize::MAX {
                     let name = &chunk.assets.names[local];
-                    let l = match &index {
+                    let l = match index {
                         StreamIndex::AtEnd => n,
                         StreamIndex::Statistics => last_candidate(&opened.rgs, k, name.as_bytes()),
                         StreamIndex::Decoded(m) => m.get(name).copied().unwrap_or(k).max(k),
@@ -618,7 +618,7 @@ impl HistoryReader {
                         group.par_iter().map(|r| decode_rg(&opened.files, r, want, self)).collect();
                     for (i, d) in decoded.into_iter().enumerate() {
                         let msg = match d {
-                            Ok(c) => Msg::Chunk(c),
+                            Ok(c) => Msg::Chunk(Box::new(c)),
                             Err(e) => Msg::Bad(e),
                         };
                         if tx.send((w * window + i, msg)).is_err() {
@@ -984,7 +984,7 @@ enum Want {
 }
 
 enum Msg {
-    Chunk(Chunk),
+    Chunk(Box<Chunk>),
     Bad(Error),
 }
 

@@ -21,7 +21,7 @@ use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
 /// Options for [`HistoryWriter`].
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, Copy)]
 pub struct HistoryWriterOptions {
     /// Rows per Parquet row group (default 1,048,576).
     pub row_group_rows: usize,
