@@ -154,6 +154,25 @@ def main() -> None:
         "u_from_third": u,
     }
 
+    # ------------------------------------------------------------- AR(1) fit
+    from statsmodels.tsa.stattools import acf
+
+    rng = np.random.default_rng(2012)
+    e = rng.normal(0.0, 1.0, 300)
+    xa = np.empty(300)
+    xa[0] = e[0] / math.sqrt(1 - 0.81)
+    for i in range(1, 300):
+        xa[i] = 0.9 * xa[i - 1] + e[i]
+    xa = xa + 40.0
+    out["ar1"] = {
+        "source": f"statsmodels {statsmodels.__version__} statsmodels.tsa.stattools.acf(x, nlags=1, fft=False)[1]; "
+        "numpy x.mean(), x.std(ddof=0); x = 40 + AR(1) phi 0.9, default_rng(2012)",
+        "x": xa.tolist(),
+        "acf1": float(acf(xa, nlags=1, fft=False)[1]),
+        "mean": float(xa.mean()),
+        "sd_ddof0": float(xa.std(ddof=0)),
+    }
+
     # ---------------------------------------------------------- PELT cases
     cases = []
     costs = {"l2": sse, "normal": normal_cost}

@@ -63,11 +63,16 @@
 //! ```
 
 mod ar1;
+#[cfg(test)]
+mod autocorr_tests;
 pub mod cusum;
 mod ols_cusum;
 pub mod page_hinkley;
 pub mod pelt;
 mod scale;
+
+/// Re-exported so callers can check parameter builders without naming linfa.
+pub use linfa::ParamGuard;
 
 pub use ar1::{Ar1, Ar1Error};
 pub use cusum::{

@@ -2,7 +2,7 @@
 
 use super::error::PeltError;
 use super::params::{Autocorrelation, Cost, PeltParams, PeltValidParams, Penalty, Pruning};
-use crate::changepoint::ar1::lag1_autocorrelation;
+use crate::changepoint::ols_cusum::deviation_cusum;
 use crate::changepoint::scale::sigma_from_differences;
 
 /// Entry point of PELT (see [`PeltValidParams::segment`]).
@@ -161,46 +161,95 @@ impl PeltValidParams {
         }
         let ln_n = (n as f64).ln();
         let needs_scale = !matches!(self.penalty, Penalty::Value(_));
-        let phi = match (needs_scale, self.autocorrelation) {
-            (true, Autocorrelation::Ar1) => Some(lag1_autocorrelation(y).clamp(0.0, 0.99)),
-            _ => None,
-        };
-        let f = phi.map_or(1.0, |p| (1.0 + p) / (1.0 - p));
-        let sigma = match (needs_scale, self.cost) {
-            (true, Cost::L2) => Some(match self.noise_sigma {
-                Some(s) => s,
-                None => {
-                    let s = sigma_from_differences(y).unwrap_or(0.0);
-                    if s <= 0.0 {
-                        return Err(PeltError::ZeroScale);
-                    }
-                    s / (1.0 - phi.unwrap_or(0.0)).sqrt()
+        let sigma_d = match (needs_scale, self.cost, self.noise_sigma) {
+            (true, Cost::L2, None) => {
+                let s = sigma_from_differences(y).unwrap_or(0.0);
+                if s <= 0.0 {
+                    return Err(PeltError::ZeroScale);
                 }
-            }),
+                Some(s)
+            }
             _ => None,
         };
-        let s2 = sigma.map_or(1.0, |s| s * s);
-        let (beta, gamma) = match self.penalty {
-            Penalty::Value(b) => (b, 0.0),
-            Penalty::Bic => {
-                let p_plus_1 = match self.cost {
-                    Cost::L2 => 2.0,
-                    Cost::Normal => 3.0,
-                };
-                (p_plus_1 * s2 * f * ln_n, 0.0)
-            }
-            Penalty::Mbic => (3.0 * s2 * f * ln_n, s2 * f),
+        // (beta, gamma, sigma) for a given AR(1) coefficient
+        let penalty_for = |phi: Option<f64>| {
+            let f = phi.map_or(1.0, |p| (1.0 + p) / (1.0 - p));
+            let sigma = match (needs_scale, self.cost) {
+                (true, Cost::L2) => {
+                    self.noise_sigma.or(sigma_d.map(|s| s / (1.0 - phi.unwrap_or(0.0)).sqrt()))
+                }
+                _ => None,
+            };
+            let s2 = sigma.map_or(1.0, |s| s * s);
+            let (beta, gamma) = match self.penalty {
+                Penalty::Value(b) => (b, 0.0),
+                Penalty::Bic => {
+                    let p_plus_1 = match self.cost {
+                        Cost::L2 => 2.0,
+                        Cost::Normal => 3.0,
+                    };
+                    (p_plus_1 * s2 * f * ln_n, 0.0)
+                }
+                Penalty::Mbic => (3.0 * s2 * f * ln_n, s2 * f),
+            };
+            (beta, gamma, sigma)
         };
-        let obj = Objective {
+        let mut obj = Objective {
             prefix: Prefix::new(y),
             cost: self.cost,
             floor: self.variance_floor,
-            gamma,
+            gamma: 0.0,
             ln_n,
         };
-        let (breakpoints, penalised_cost) = pelt_core(&obj, n, self.min_size, beta, self.pruning);
+        let mut phi = match (needs_scale, self.autocorrelation) {
+            (true, Autocorrelation::Ar1) => {
+                // start from the series with its single best level split removed, so one
+                // large step does not inflate phi (and hide itself behind the penalty)
+                let k = deviation_cusum(y)
+                    .iter()
+                    .enumerate()
+                    .take(n.saturating_sub(2))
+                    .skip(1)
+                    .max_by(|a, b| a.1.abs().total_cmp(&b.1.abs()))
+                    .map_or(n, |(i, _)| i + 1);
+                Some(within_segment_lag1(y, &[k, n]).clamp(0.0, 0.99))
+            }
+            _ => None,
+        };
+        let (mut beta, gamma, mut sigma) = penalty_for(phi);
+        obj.gamma = gamma;
+        let (mut breakpoints, mut penalised_cost) =
+            pelt_core(&obj, n, self.min_size, beta, self.pruning);
+        // then re-estimate phi within the segments found, while that lowers it
+        for _ in 0..4 {
+            let Some(p1) = phi else { break };
+            if breakpoints.len() < 2 {
+                break;
+            }
+            let p2 = within_segment_lag1(y, &breakpoints).clamp(0.0, 0.99);
+            if p2 >= p1 - 1e-3 {
+                break;
+            }
+            phi = Some(p2);
+            let (b, g, s) = penalty_for(phi);
+            (beta, sigma, obj.gamma) = (b, s, g);
+            (breakpoints, penalised_cost) = pelt_core(&obj, n, self.min_size, beta, self.pruning);
+        }
         Ok(Segmentation { breakpoints, penalised_cost, beta, phi, sigma })
     }
+}
+
+/// Pooled lag-1 autocorrelation of `y` with each segment's own mean removed.
+fn within_segment_lag1(y: &[f64], breakpoints: &[usize]) -> f64 {
+    let (mut c0, mut c1, mut start) = (0.0, 0.0, 0);
+    for &end in breakpoints {
+        let seg = &y[start..end];
+        let mean = seg.iter().sum::<f64>() / seg.len() as f64;
+        c0 += seg.iter().map(|v| (v - mean) * (v - mean)).sum::<f64>();
+        c1 += seg.windows(2).map(|w| (w[0] - mean) * (w[1] - mean)).sum::<f64>();
+        start = end;
+    }
+    if c0 > 0.0 { c1 / c0 } else { 0.0 }
 }
 
 /// The PELT recursion; returns (breakpoints, F(n)).

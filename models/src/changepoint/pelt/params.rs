@@ -54,11 +54,14 @@ pub enum Pruning {
 pub enum Autocorrelation {
     /// Independent noise.
     Ignore,
-    /// AR(1) noise (project default): phi from the lag-1 autocorrelation of
-    /// the series, clamped to [0, 0.99]; the penalty is multiplied by the
+    /// AR(1) noise (project default): the penalty is multiplied by the
     /// long-run variance ratio (1 + phi) / (1 - phi) and, for `L2`, the
-    /// estimated sigma is the marginal one. A real level change inflates the
-    /// estimate of phi, so the adjustment errs on the side of fewer changes.
+    /// estimated sigma is the marginal one, sigma_d / sqrt(1 - phi). phi is a
+    /// lag-1 autocorrelation clamped to [0, 0.99]. Real level changes
+    /// inflate it, so it is first computed with the single best split's
+    /// segment means removed, and while a pass finds changes it is
+    /// re-estimated within the segments found and the search repeated (at
+    /// most 4 more passes, stopping once phi no longer drops).
     #[default]
     Ar1,
 }
