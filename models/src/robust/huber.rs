@@ -11,7 +11,9 @@ use super::mad::{MAD_NORMAL, median_mad_with_scratch};
 #[non_exhaustive]
 pub enum HuberParamsError {
     /// The clipping constant is not a positive finite number.
-    #[error("huber k must be a finite number > 0 (in scale units), got {0}; 1.345 or 1.5 are usual")]
+    #[error(
+        "huber k must be a finite number > 0 (in scale units), got {0}; 1.345 or 1.5 are usual"
+    )]
     K(f64),
     /// The tolerance is not a positive finite number.
     #[error("huber tolerance must be a finite number > 0 (relative to scale), got {0}; try 1e-12")]
@@ -37,7 +39,9 @@ pub enum HuberError {
         got: usize,
     },
     /// The iteration did not meet the tolerance.
-    #[error("huber iteration did not converge in {0} iterations; raise max_iter or loosen tolerance")]
+    #[error(
+        "huber iteration did not converge in {0} iterations; raise max_iter or loosen tolerance"
+    )]
     NoConvergence(usize),
 }
 

@@ -187,7 +187,7 @@ pub(crate) fn sn_raw_sorted(y: &[f64]) -> f64 {
             kth_of_two(i + 1, a, n - 1 - i, b, k_hi)
         })
         .collect();
-    select(&mut inner, (n + 1) / 2 - 1) // lomed
+    select(&mut inner, n.div_ceil(2) - 1) // lomed: order statistic floor((n + 1) / 2)
 }
 
 /// Qn_raw of ascending, finite `y` with `y.len() >= 2`.
@@ -310,7 +310,7 @@ pub(crate) mod naive {
             })
             .collect();
         outer.sort_by(f64::total_cmp);
-        outer[(n + 1) / 2 - 1]
+        outer[n.div_ceil(2) - 1]
     }
 }
 
@@ -384,12 +384,21 @@ mod tests {
         // robustbase-encoded tables, catalogue §2 / reference_vectors 2_qn_sn
         assert_eq!(sn_small_sample_factor(2, SmallSample::CrouxRousseeuw1992), 0.743);
         assert_eq!(sn_small_sample_factor(9, SmallSample::CrouxRousseeuw1992), 1.131);
-        assert_relative_eq!(sn_small_sample_factor(11, SmallSample::CrouxRousseeuw1992), 1.0891089108910892);
+        assert_relative_eq!(
+            sn_small_sample_factor(11, SmallSample::CrouxRousseeuw1992),
+            1.0891089108910892
+        );
         assert_eq!(sn_small_sample_factor(12, SmallSample::CrouxRousseeuw1992), 1.0);
         assert_eq!(qn_small_sample_factor(2, SmallSample::CrouxRousseeuw1992), 0.399);
         assert_eq!(qn_small_sample_factor(9, SmallSample::CrouxRousseeuw1992), 0.872);
-        assert_relative_eq!(qn_small_sample_factor(10, SmallSample::CrouxRousseeuw1992), 0.7246376811594203);
-        assert_relative_eq!(qn_small_sample_factor(13, SmallSample::CrouxRousseeuw1992), 0.9027777777777778);
+        assert_relative_eq!(
+            qn_small_sample_factor(10, SmallSample::CrouxRousseeuw1992),
+            0.7246376811594203
+        );
+        assert_relative_eq!(
+            qn_small_sample_factor(13, SmallSample::CrouxRousseeuw1992),
+            0.9027777777777778
+        );
     }
 
     #[test]

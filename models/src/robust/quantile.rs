@@ -91,7 +91,7 @@ fn position(n: usize, p: f64, ty: QuantileType) -> (usize, f64) {
             }
         }
         Type3 => {
-            if g == 0.0 && j % 2 == 0 {
+            if g == 0.0 && j.is_multiple_of(2) {
                 0.0
             } else {
                 1.0
@@ -155,10 +155,9 @@ pub fn quantile_with_scratch(
     if g == 0.0 {
         return Some(lo);
     }
-    let hi = if j >= n {
+    // j = 0 uses x_(1) twice, j = n uses x_(n) twice
+    let hi = if j >= n || j == 0 {
         lo
-    } else if j == 0 {
-        lo // x_(1) again
     } else {
         scratch[lo_idx + 1..].iter().copied().fold(f64::INFINITY, f64::min)
     };
