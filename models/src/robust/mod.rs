@@ -48,6 +48,10 @@ mod quantile;
 mod rolling;
 pub(crate) mod select;
 
+/// linfa's parameter-checking trait, re-exported so callers can `check()`
+/// parameter sets without depending on linfa themselves.
+pub use linfa::ParamGuard;
+
 pub use huber::{
     Huber, HuberError, HuberEstimate, HuberParams, HuberParamsError, HuberValidParams, huber_beta,
 };

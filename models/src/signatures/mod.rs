@@ -45,6 +45,9 @@
 //! flagged:      [-----)     [-)      Span { start: 2, end: 5 }, Span { start: 7, end: 8 }
 //! ```
 
+/// linfa's parameter-checking trait, re-exported for `XParams::check()`.
+pub use linfa::ParamGuard;
+
 mod dropout;
 #[cfg(test)]
 mod false_alarm;
