@@ -1,0 +1,48 @@
+//! Command-line interface: one subcommand per job (DESIGN.md section 5).
+//!
+//! Arguments are converted in two stages: clap parses raw flags into the
+//! `*Args` structs here, and each job turns them into checked settings
+//! before any data is read, so usage errors surface at once.
+
+mod demo;
+
+use clap::{Parser, Subcommand};
+
+pub use demo::DemoArgs;
+
+/// telltale: tells a failing sensor from a real process change from a developing
+/// equipment fault, with evidence.
+///
+/// Exit codes: 0 finished (with or without suspicions), 1 runtime failure,
+/// 2 bad usage or bad input. Data goes to stdout; logs and progress to stderr.
+/// telltale is decision support, not a protective or safety function.
+#[derive(Debug, Parser)]
+#[command(name = "telltale", version, about, long_about)]
+pub struct Cli {
+    /// More log output on stderr (-v, -vv)
+    #[arg(short, long, action = clap::ArgAction::Count, global = true)]
+    pub verbose: u8,
+    /// Only errors on stderr; no progress bars
+    #[arg(short, long, global = true)]
+    pub quiet: bool,
+    /// The job to run
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The jobs.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Generate the demo fleet (a water utility's pumping stations) with its ground truth
+    Demo(DemoArgs),
+}
+
+/// Run the parsed command.
+///
+/// # Errors
+/// Whatever the job reports, with context.
+pub fn dispatch(cli: Cli) -> anyhow::Result<()> {
+    match cli.command {
+        Command::Demo(args) => demo::run(&args, cli.quiet),
+    }
+}

@@ -1,0 +1,29 @@
+//! Logs and progress go to stderr; stdout carries data only.
+
+use std::io::IsTerminal;
+use tracing_subscriber::EnvFilter;
+
+/// Install the stderr subscriber. `-v` raises the level, `-q` lowers it;
+/// `RUST_LOG` overrides both. Colour only on a terminal and never with `NO_COLOR`.
+pub fn init(verbose: u8, quiet: bool) {
+    let level = match (quiet, verbose) {
+        (true, _) => "error",
+        (false, 0) => "info",
+        (false, 1) => "debug",
+        (false, _) => "trace",
+    };
+    let filter = EnvFilter::try_from_default_env().unwrap_or_else(|_| EnvFilter::new(level));
+    let ansi = std::io::stderr().is_terminal() && std::env::var_os("NO_COLOR").is_none();
+    let _ = tracing_subscriber::fmt()
+        .with_env_filter(filter)
+        .with_writer(std::io::stderr)
+        .with_ansi(ansi)
+        .with_target(false)
+        .without_time()
+        .try_init();
+}
+
+/// Whether progress bars should be drawn: stderr is a terminal and not quiet.
+pub fn show_progress(quiet: bool) -> bool {
+    !quiet && std::io::stderr().is_terminal()
+}
