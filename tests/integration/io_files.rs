@@ -26,7 +26,6 @@ fn events() -> Vec<Event> {
     read_events_from(DESIGN_EVENTS.as_bytes(), FileFormat::Csv, Path::new("events.csv")).unwrap()
 }
 
-#[expect(clippy::unwrap_used, reason = "test helper")]
 fn suspicions() -> Vec<Suspicion> {
     let onset = t!("2026-03-02T10:00:00Z");
     vec![
