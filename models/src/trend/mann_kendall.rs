@@ -161,6 +161,16 @@ impl MannKendallParams {
         self.0.exact_max_n = n;
         self
     }
+
+    /// Checks the parameters and runs the test (shorthand for
+    /// `self.check()?.test(x)`).
+    ///
+    /// # Errors
+    /// [`MannKendallError::Params`] for invalid parameters, otherwise as
+    /// [`MannKendallValidParams::test`].
+    pub fn test(&self, x: &[f64]) -> Result<MannKendall, MannKendallError> {
+        self.check_ref()?.test(x)
+    }
 }
 
 impl MannKendallValidParams {

@@ -72,6 +72,15 @@ impl TheilSenParams {
         self.0.confidence = confidence;
         self
     }
+
+    /// Checks the parameters and fits (shorthand for `self.check()?.fit(t, y)`).
+    ///
+    /// # Errors
+    /// [`TheilSenError::Params`] for invalid parameters, otherwise as
+    /// [`TheilSenValidParams::fit`].
+    pub fn fit(&self, t: &[f64], y: &[f64]) -> Result<TheilSen, TheilSenError> {
+        self.check_ref()?.fit(t, y)
+    }
 }
 
 impl TheilSenValidParams {

@@ -97,6 +97,15 @@ impl BrownForsytheParams {
         self.0.adjustment = adjustment;
         self
     }
+
+    /// Checks the parameters and runs the test (shorthand for
+    /// `self.check()?.test(groups)`).
+    ///
+    /// # Errors
+    /// As [`BrownForsytheValidParams::test`].
+    pub fn test(&self, groups: &[&[f64]]) -> Result<BrownForsythe, BrownForsytheError> {
+        self.check_ref()?.test(groups)
+    }
 }
 
 impl BrownForsytheValidParams {

@@ -88,6 +88,16 @@ impl KolmogorovSmirnovParams {
         self.0.adjustment = adjustment;
         self
     }
+
+    /// Checks the parameters and runs the test (shorthand for
+    /// `self.check()?.test(x, y)`).
+    ///
+    /// # Errors
+    /// [`KolmogorovSmirnovError::Params`] for invalid parameters, otherwise as
+    /// [`KolmogorovSmirnovValidParams::test`].
+    pub fn test(&self, x: &[f64], y: &[f64]) -> Result<KolmogorovSmirnov, KolmogorovSmirnovError> {
+        self.check_ref()?.test(x, y)
+    }
 }
 
 impl KolmogorovSmirnovValidParams {

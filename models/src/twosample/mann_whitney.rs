@@ -103,6 +103,16 @@ impl MannWhitneyParams {
         self.0.adjustment = adjustment;
         self
     }
+
+    /// Checks the parameters and runs the test (shorthand for
+    /// `self.check()?.test(x, y)`).
+    ///
+    /// # Errors
+    /// [`MannWhitneyError::Params`] for invalid parameters, otherwise as
+    /// [`MannWhitneyValidParams::test`].
+    pub fn test(&self, x: &[f64], y: &[f64]) -> Result<MannWhitney, MannWhitneyError> {
+        self.check_ref()?.test(x, y)
+    }
 }
 
 impl MannWhitneyValidParams {
