@@ -691,18 +691,27 @@ impl HistoryReader {
             let file = File::open(p).map_err(|e| Error::io(p, e))?;
             let mut r = BufReader::with_capacity(1 << 20, file);
             let mut ids: Vec<u32> = Vec::new();
-            for _ in 0..bucket_rows[b] {
-                r.read_exact(&mut rec).map_err(|e| Error::io(p, e))?;
-                let a = u32::from_le_bytes([rec[0], rec[1], rec[2], rec[3]]);
-                let s = u32::from_le_bytes([rec[4], rec[5], rec[6], rec[7]]);
-                let mut t = [0u8; 8];
-                t.copy_from_slice(&rec[8..16]);
-                let ts = i64::from_le_bytes(t);
-                t.copy_from_slice(&rec[16..24]);
-                let v = f64::from_bits(u64::from_le_bytes(t));
-                if state.push_one(a, s, ts, v, rec[24] != 0) {
-                    ids.push(a);
+            let mut block = vec![0u8; SPILL_ROW * 8192];
+            let mut left = bucket_rows[b] as usize;
+            while left > 0 {
+                let n = left.min(8192);
+                let bytes = &mut block[..n * SPILL_ROW];
+                r.read_exact(bytes).map_err(|e| Error::io(p, e))?;
+                for rec in bytes.chunks_exact(SPILL_ROW) {
+                    let word = |k: usize| {
+                        let mut w = [0u8; 8];
+                        w.copy_from_slice(&rec[k..k + 8]);
+                        w
+                    };
+                    let a = u32::from_le_bytes([rec[0], rec[1], rec[2], rec[3]]);
+                    let s = u32::from_le_bytes([rec[4], rec[5], rec[6], rec[7]]);
+                    let ts = i64::from_le_bytes(word(8));
+                    let v = f64::from_bits(u64::from_le_bytes(word(16)));
+                    if state.push_one(a, s, ts, v, rec[24] != 0) {
+                        ids.push(a);
+                    }
                 }
+                left -= n;
             }
             summary.peak_buffered_rows = summary.peak_buffered_rows.max(state.rows);
             drop(r);
@@ -1149,19 +1158,24 @@ struct SensorBuf {
 
 #[derive(Default)]
 struct AssetBuf {
-    /// global sensor id -> position in `sensors`
-    pos: HashMap<u32, usize>,
+    /// (global sensor id, readings); an asset has a handful of sensors, so a
+    /// linear search with a last-hit cache beats hashing
     sensors: Vec<(u32, SensorBuf)>,
+    last: usize,
 }
 
 impl AssetBuf {
     fn sensor(&mut self, s: u32) -> &mut SensorBuf {
-        let next = self.sensors.len();
-        let i = *self.pos.entry(s).or_insert(next);
-        if i == next {
-            self.sensors.push((s, SensorBuf::default()));
+        if self.sensors.get(self.last).is_none_or(|(id, _)| *id != s) {
+            self.last = match self.sensors.iter().position(|(id, _)| *id == s) {
+                Some(i) => i,
+                None => {
+                    self.sensors.push((s, SensorBuf::default()));
+                    self.sensors.len() - 1
+                }
+            };
         }
-        &mut self.sensors[i].1
+        &mut self.sensors[self.last].1
     }
 }
 
