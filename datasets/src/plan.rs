@@ -355,7 +355,7 @@ impl Ctx<'_> {
                 Bias,
                 g.span(0.10, 0.40),
                 false,
-                "DE bearing probe reads +1.2 degC (subtle); probe re-seated at the end".into(),
+                "DE bearing probe reads +1.2 degC (subtle: about 1 robust sigma of the context-explained baseline); probe re-seated at the end".into(),
             ),
             Case::BiasObvious => self.sensor_fault(
                 sid::DISCHARGE,

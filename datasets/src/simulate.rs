@@ -2,8 +2,9 @@
 //!
 //! Site level (shared by every pump of a station, one random stream each):
 //! - ambient: seasonal trend + daily cycle (peak 15:00 UTC) + multi-day
-//!   weather fronts (Ornstein-Uhlenbeck, tau 2.5 d) + a short-term wander
-//!   (tau 1 h) + the heatwave, if the site has one;
+//!   weather fronts (Ornstein-Uhlenbeck, tau 2.5 d, shared by all sites) + a
+//!   local part (tau 1.5 d) + a short-term wander (tau 1 h) + the heatwave, if
+//!   the site has one;
 //! - demand: a weekday/weekend daily profile times a slow random factor
 //!   (boosters), or a night-weighted profile (raw-water pumps fill the works on
 //!   the cheap night tariff);
@@ -135,8 +136,12 @@ fn site_env(p: &FleetPlan, seed: u64, a: &AssetInfo, site: &SitePlan) -> SiteEnv
     let hw = |k: usize| site.heatwave.map_or(0.0, |(s, e, amp)| amp * bump(k, s, e));
     let hw_share = |k: usize| site.heatwave.map_or(0.0, |(s, e, _)| bump(k, s, e));
 
+    // Weather fronts are regional (shared by every site of the utility), with
+    // a smaller local part; the short-term wander is local.
+    let mut regional_rng = stream_rng(seed, seed::SITE, u64::MAX);
+    let mut front = Ou::new(2.5 * 86_400.0, dt, 2.2, &mut regional_rng);
     let mut rng = stream(0);
-    let mut front = Ou::new(2.5 * 86_400.0, dt, 2.5, &mut rng);
+    let mut local = Ou::new(1.5 * 86_400.0, dt, 0.8, &mut rng);
     let mut wander = Ou::new(3600.0, dt, 0.4, &mut rng);
     let ambient: Vec<f64> = (0..n)
         .map(|k| {
@@ -144,7 +149,8 @@ fn site_env(p: &FleetPlan, seed: u64, a: &AssetInfo, site: &SitePlan) -> SiteEnv
             let day = k as f64 / g.samples_per_day();
             16.0 + 0.05 * day
                 + 4.0 * (2.0 * PI * (h - 15.0) / 24.0).cos()
-                + front.step(&mut rng)
+                + front.step(&mut regional_rng)
+                + local.step(&mut rng)
                 + wander.step(&mut rng)
                 + hw(k)
         })
