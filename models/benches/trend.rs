@@ -32,6 +32,13 @@ fn bench_trend(c: &mut Criterion) {
     for n in [1_000usize, 10_000] {
         let y = splitmix_series(n, 42);
         let t: Vec<f64> = (0..n).map(|i| i as f64).collect();
+        // same data as the Python side: its printed check value S (pymannkendall.original_test)
+        let s_python = if n == 1_000 { 123_698 } else { 43_730_802 };
+        assert_eq!(
+            classical.test(&y).map(|r| r.s).ok(),
+            Some(s_python),
+            "bench data differ from bench/trend_reference.py"
+        );
         c.bench_with_input(BenchmarkId::new("mann_kendall", n), &y, |b, y| {
             b.iter(|| classical.test(black_box(y)).map(|r| r.p_two_sided))
         });

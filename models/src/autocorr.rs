@@ -25,7 +25,9 @@ pub const MAX_PHI: f64 = 0.99;
 #[non_exhaustive]
 pub enum AutocorrError {
     /// Too few observations for the requested estimate.
-    #[error("need at least {need} observations to estimate autocorrelation, got {got}; use a longer window")]
+    #[error(
+        "need at least {need} observations to estimate autocorrelation, got {got}; use a longer window"
+    )]
     TooShort {
         /// minimum length
         need: usize,
@@ -33,10 +35,14 @@ pub enum AutocorrError {
         got: usize,
     },
     /// The series has zero variance, so its autocorrelation is undefined.
-    #[error("series is constant (zero variance), autocorrelation is undefined; check the sensor for a stuck value")]
+    #[error(
+        "series is constant (zero variance), autocorrelation is undefined; check the sensor for a stuck value"
+    )]
     Constant,
     /// A value is NaN or infinite.
-    #[error("value at index {index} is not finite ({value}); drop or interpolate missing values first")]
+    #[error(
+        "value at index {index} is not finite ({value}); drop or interpolate missing values first"
+    )]
     NonFinite {
         /// position in the input slice
         index: usize,

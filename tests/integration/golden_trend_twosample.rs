@@ -17,7 +17,8 @@ use telltale_models::twosample::{
 };
 
 fn catalogue() -> Value {
-    serde_json::from_str(include_str!("../golden/reference_vectors.json")).expect("valid catalogue JSON")
+    serde_json::from_str(include_str!("../golden/reference_vectors.json"))
+        .expect("valid catalogue JSON")
 }
 
 fn golden() -> Value {
@@ -159,7 +160,11 @@ fn distributions_match_scipy() {
         assert_relative_eq!(got, f(&e["sf"]), max_relative = 1e-8);
     }
     for e in d["chi2_sf"].as_array().unwrap() {
-        assert_relative_eq!(dist::chi2_sf(f(&e["x"]), f(&e["df"])), f(&e["sf"]), max_relative = 1e-8);
+        assert_relative_eq!(
+            dist::chi2_sf(f(&e["x"]), f(&e["df"])),
+            f(&e["sf"]),
+            max_relative = 1e-8
+        );
     }
     for e in d["beta_ppf"].as_array().unwrap() {
         let got = dist::beta_ppf(f(&e["p"]), f(&e["a"]), f(&e["b"]));
@@ -187,10 +192,7 @@ fn acf_matches_statsmodels() {
 #[test]
 fn mann_kendall_with_ties_matches_pymannkendall() {
     let g = &golden()["mann_kendall"]["original_ties"];
-    let r = MannKendall::params()
-        .correction(SerialCorrection::None)
-        .test(&vecf(&g["x"]))
-        .unwrap();
+    let r = MannKendall::params().correction(SerialCorrection::None).test(&vecf(&g["x"])).unwrap();
     assert_eq!(r.s as f64, f(&g["s"]));
     assert_relative_eq!(r.var_s, f(&g["var_s"]), max_relative = 1e-10);
     assert_relative_eq!(r.z, f(&g["z"]), max_relative = 1e-10);
@@ -232,7 +234,10 @@ fn default_prewhitening_matches_pymannkendall() {
     // the same default with a different estimator is a different test
     let g = &golden()["mann_kendall"]["pw_plain"];
     let r = MannKendall::params()
-        .correction(SerialCorrection::Prewhiten { estimator: Ar1Estimator::BiasCorrected, detrend: false })
+        .correction(SerialCorrection::Prewhiten {
+            estimator: Ar1Estimator::BiasCorrected,
+            detrend: false,
+        })
         .test(&vecf(&g["x"]))
         .unwrap();
     assert!(r.phi.unwrap() > f(&g["r1"]));
@@ -243,10 +248,8 @@ fn theil_sen_matches_scipy() {
     let g = golden();
     for (case, v) in g["theil_sen"].as_object().unwrap() {
         let confidence = v.get("confidence").map_or(0.95, f);
-        let r = TheilSen::params()
-            .confidence(confidence)
-            .fit(&vecf(&v["t"]), &vecf(&v["y"]))
-            .unwrap();
+        let r =
+            TheilSen::params().confidence(confidence).fit(&vecf(&v["t"]), &vecf(&v["y"])).unwrap();
         assert_relative_eq!(r.slope, f(&v["slope"]), max_relative = 1e-12);
         assert_relative_eq!(r.intercept, f(&v["intercept"]), max_relative = 1e-10);
         // order statistics of the slopes; 1e-12 rather than exact because

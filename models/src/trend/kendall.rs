@@ -190,9 +190,8 @@ mod tests {
     #[test]
     fn holy_cross_example_s_is_54() {
         // P-confirmed worked example, EXTERNAL-CHECKS §9 check A
-        let x = [
-            12.9, 14.8, 13.2, 15.7, 13.8, 15.6, 12.9, 11.0, 17.3, 15.9, 19.0, 18.3, 20.1, 21.7,
-        ];
+        let x =
+            [12.9, 14.8, 13.2, 15.7, 13.8, 15.6, 12.9, 11.0, 17.3, 15.9, 19.0, 18.3, 20.1, 21.7];
         let k = kendall_score(&x);
         assert_eq!(k.s, 54);
         assert_eq!(k.ties, vec![2]);

@@ -87,13 +87,17 @@ pub enum PValueMethod {
 #[non_exhaustive]
 pub enum MannKendallParamsError {
     /// `exact_max_n` above the supported limit.
-    #[error("exact_max_n must be <= 50 (exact distribution cost grows as n³), got {0}; 10 is the usual table limit")]
+    #[error(
+        "exact_max_n must be <= 50 (exact distribution cost grows as n³), got {0}; 10 is the usual table limit"
+    )]
     ExactMaxN(usize),
     /// Screening level outside (0, 1).
     #[error("hamed-rao screening_alpha must be in (0, 1), got {0}; 0.05 is the usual choice")]
     ScreeningAlpha(f64),
     /// A maximum lag of zero.
-    #[error("hamed-rao max_lag must be >= 1, got 0; use None for all lags or 3 for the first three")]
+    #[error(
+        "hamed-rao max_lag must be >= 1, got 0; use None for all lags or 3 for the first three"
+    )]
     MaxLag,
 }
 
@@ -105,7 +109,9 @@ pub enum MannKendallError {
     #[error(transparent)]
     Params(#[from] MannKendallParamsError),
     /// Too few values.
-    #[error("mann-kendall needs at least {need} values with this correction, got {got}; use a longer window")]
+    #[error(
+        "mann-kendall needs at least {need} values with this correction, got {got}; use a longer window"
+    )]
     TooShort {
         /// minimum length
         need: usize,
@@ -113,7 +119,9 @@ pub enum MannKendallError {
         got: usize,
     },
     /// A value is NaN or infinite.
-    #[error("value at index {index} is not finite ({value}); drop or interpolate missing values first")]
+    #[error(
+        "value at index {index} is not finite ({value}); drop or interpolate missing values first"
+    )]
     NonFinite {
         /// position in the input
         index: usize,
@@ -121,10 +129,14 @@ pub enum MannKendallError {
         value: f64,
     },
     /// All values are equal: no ordering information.
-    #[error("all values are equal, so Var(S) = 0 and no trend can be tested; check the sensor for a stuck value")]
+    #[error(
+        "all values are equal, so Var(S) = 0 and no trend can be tested; check the sensor for a stuck value"
+    )]
     Constant,
     /// The Hamed–Rao factor came out non-positive.
-    #[error("hamed-rao variance factor is {0} (<= 0), the autocorrelation estimate is unusable; use SerialCorrection::Prewhiten")]
+    #[error(
+        "hamed-rao variance factor is {0} (<= 0), the autocorrelation estimate is unusable; use SerialCorrection::Prewhiten"
+    )]
     VarianceFactor(f64),
     /// The AR(1) estimate failed.
     #[error("estimating the AR(1) coefficient for prewhitening failed")]
@@ -303,7 +315,9 @@ impl MannKendallValidParams {
                 };
                 let phi = match autocorr::ar1_coefficient(&base, estimator) {
                     Ok(p) => p,
-                    Err(autocorr::AutocorrError::Constant) => return Err(MannKendallError::Constant),
+                    Err(autocorr::AutocorrError::Constant) => {
+                        return Err(MannKendallError::Constant);
+                    }
                     Err(e) => return Err(e.into()),
                 };
                 if phi > 0.0 {
@@ -493,7 +507,10 @@ mod tests {
 
     #[test]
     fn bad_input_errors() {
-        assert!(matches!(classical().test(&[1.0, 2.0]), Err(MannKendallError::TooShort { need: 3, got: 2 })));
+        assert!(matches!(
+            classical().test(&[1.0, 2.0]),
+            Err(MannKendallError::TooShort { need: 3, got: 2 })
+        ));
         assert!(matches!(
             classical().test(&[1.0, f64::INFINITY, 2.0]),
             Err(MannKendallError::NonFinite { index: 1, .. })

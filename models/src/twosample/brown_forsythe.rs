@@ -42,7 +42,9 @@ pub enum BrownForsytheError {
         len: usize,
     },
     /// A value is NaN or infinite.
-    #[error("group {group} value at index {index} is not finite ({value}); drop missing values first")]
+    #[error(
+        "group {group} value at index {index} is not finite ({value}); drop missing values first"
+    )]
     NonFinite {
         /// index of the group
         group: usize,
@@ -52,10 +54,14 @@ pub enum BrownForsytheError {
         value: f64,
     },
     /// Every group is constant.
-    #[error("every group has zero spread, so the test statistic is undefined; check for stuck sensors")]
+    #[error(
+        "every group has zero spread, so the test statistic is undefined; check for stuck sensors"
+    )]
     ZeroSpread,
     /// Autocorrelation leaves too little information.
-    #[error("after the serial-correlation adjustment the {total} values are worth only {effective:.1} independent ones, fewer than groups + 1; use longer windows")]
+    #[error(
+        "after the serial-correlation adjustment the {total} values are worth only {effective:.1} independent ones, fewer than groups + 1; use longer windows"
+    )]
     TooFewEffective {
         /// number of values
         total: usize,
@@ -225,7 +231,8 @@ impl BrownForsytheValidParams {
         let kf = k as f64;
         let means: Vec<f64> = z.iter().map(|v| v.iter().sum::<f64>() / v.len() as f64).collect();
         let grand = z.iter().flatten().sum::<f64>() / nf;
-        let ssb: f64 = z.iter().zip(&means).map(|(v, m)| v.len() as f64 * (m - grand).powi(2)).sum();
+        let ssb: f64 =
+            z.iter().zip(&means).map(|(v, m)| v.len() as f64 * (m - grand).powi(2)).sum();
         let ssw: f64 =
             z.iter().zip(&means).map(|(v, m)| v.iter().map(|x| (x - m).powi(2)).sum::<f64>()).sum();
         if ssw <= 0.0 {

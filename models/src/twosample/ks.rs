@@ -26,7 +26,9 @@ pub enum KsMethod {
 #[non_exhaustive]
 pub enum KolmogorovSmirnovParamsError {
     /// Exact method requested together with a serial-correlation adjustment.
-    #[error("the exact KS distribution assumes independent observations; set adjustment to None or use the asymptotic method")]
+    #[error(
+        "the exact KS distribution assumes independent observations; set adjustment to None or use the asymptotic method"
+    )]
     ExactWithAdjustment,
 }
 
@@ -44,7 +46,9 @@ pub enum KolmogorovSmirnovError {
         sample: &'static str,
     },
     /// A value is NaN or infinite.
-    #[error("sample {sample} value at index {index} is not finite ({value}); drop missing values first")]
+    #[error(
+        "sample {sample} value at index {index} is not finite ({value}); drop missing values first"
+    )]
     NonFinite {
         /// `"x"` or `"y"`
         sample: &'static str,
@@ -73,7 +77,10 @@ pub struct KolmogorovSmirnovParams(KolmogorovSmirnovValidParams);
 
 impl Default for KolmogorovSmirnovParams {
     fn default() -> Self {
-        Self(KolmogorovSmirnovValidParams { method: KsMethod::Auto, adjustment: Adjustment::default() })
+        Self(KolmogorovSmirnovValidParams {
+            method: KsMethod::Auto,
+            adjustment: Adjustment::default(),
+        })
     }
 }
 
@@ -277,7 +284,8 @@ fn exact_p(n: usize, m: usize, d_int: u64) -> f64 {
     if d_int == 0 {
         return 1.0;
     }
-    let outside = |i: usize, j: usize| (i as i64 * m as i64 - j as i64 * n as i64).unsigned_abs() >= d_int;
+    let outside =
+        |i: usize, j: usize| (i as i64 * m as i64 - j as i64 * n as i64).unsigned_abs() >= d_int;
     // q[j] for the current i: fraction of paths to (i, j) that touched the boundary
     let mut q = vec![0.0f64; m + 1];
     for i in 0..=n {
@@ -333,7 +341,8 @@ mod tests {
             -1.829, 1.051, 0.187, 0.087, -0.793, -0.144, 0.442, 0.006, -1.04, 0.382, -0.067, 0.054,
             -0.482, 0.012, -0.409,
         ];
-        let b = [2.326, 0.403, 0.369, 1.01, -0.459, 0.843, -0.415, 1.16, 0.475, 0.846, 1.597, 1.109];
+        let b =
+            [2.326, 0.403, 0.369, 1.01, -0.459, 0.843, -0.415, 1.16, 0.475, 0.846, 1.597, 1.109];
         let r = plain(KsMethod::Exact).test(&a, &b).unwrap();
         assert_relative_eq!(r.d, 0.6333333333333333, max_relative = 1e-12);
         assert_relative_eq!(r.p_two_sided, 0.005059635777094386, max_relative = 1e-8);

@@ -25,7 +25,9 @@ pub enum UMethod {
 #[non_exhaustive]
 pub enum MannWhitneyParamsError {
     /// Exact method requested together with a serial-correlation adjustment.
-    #[error("the exact U distribution assumes independent observations; set adjustment to None or use the asymptotic method")]
+    #[error(
+        "the exact U distribution assumes independent observations; set adjustment to None or use the asymptotic method"
+    )]
     ExactWithAdjustment,
 }
 
@@ -43,7 +45,9 @@ pub enum MannWhitneyError {
         sample: &'static str,
     },
     /// A value is NaN or infinite.
-    #[error("sample {sample} value at index {index} is not finite ({value}); drop missing values first")]
+    #[error(
+        "sample {sample} value at index {index} is not finite ({value}); drop missing values first"
+    )]
     NonFinite {
         /// `"x"` or `"y"`
         sample: &'static str,
@@ -53,7 +57,9 @@ pub enum MannWhitneyError {
         value: f64,
     },
     /// Exact method requested for tied data.
-    #[error("the exact U distribution assumes no ties, but the data have {0} tied values; use the asymptotic method")]
+    #[error(
+        "the exact U distribution assumes no ties, but the data have {0} tied values; use the asymptotic method"
+    )]
     ExactWithTies(usize),
     /// All values are identical.
     #[error("all values in both samples are identical, so U carries no information")]
@@ -206,7 +212,10 @@ impl MannWhitney {
     }
 }
 
-pub(crate) fn check_sample(name: &'static str, v: &[f64]) -> Result<(), (&'static str, usize, f64)> {
+pub(crate) fn check_sample(
+    name: &'static str,
+    v: &[f64],
+) -> Result<(), (&'static str, usize, f64)> {
     match v.iter().position(|x| !x.is_finite()) {
         Some(i) => Err((name, i, v[i])),
         None => Ok(()),
@@ -223,10 +232,8 @@ impl MannWhitneyValidParams {
             if v.is_empty() {
                 return Err(MannWhitneyError::Empty { sample: name });
             }
-            check_sample(name, v).map_err(|(sample, index, value)| MannWhitneyError::NonFinite {
-                sample,
-                index,
-                value,
+            check_sample(name, v).map_err(|(sample, index, value)| {
+                MannWhitneyError::NonFinite { sample, index, value }
             })?;
         }
         let (n, m) = (x.len(), y.len());

@@ -143,9 +143,14 @@ mod tests {
         for (i, name) in ["mann-whitney", "kolmogorov-s", "brown-forsythe"].iter().enumerate() {
             println!("  {name:<14} {:.4}   {:.4}", naive[i], adjusted[i]);
         }
-        for (i, name) in ["mann-whitney", "kolmogorov-smirnov", "brown-forsythe"].iter().enumerate() {
+        for (i, name) in ["mann-whitney", "kolmogorov-smirnov", "brown-forsythe"].iter().enumerate()
+        {
             assert!(naive[i] > 5.0 * alpha, "{name}: naive rate {} should be inflated", naive[i]);
-            assert!(adjusted[i] <= 2.0 * alpha, "{name}: adjusted rate {} exceeds 2·α", adjusted[i]);
+            assert!(
+                adjusted[i] <= 2.0 * alpha,
+                "{name}: adjusted rate {} exceeds 2·α",
+                adjusted[i]
+            );
         }
     }
 
