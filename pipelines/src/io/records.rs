@@ -290,8 +290,28 @@ pub fn read_events_from(r: impl Read, format: FileFormat, name: &Path) -> Result
 pub fn write_events(path: impl AsRef<Path>, events: &[Event]) -> Result<()> {
     let path = path.as_ref();
     let format = FileFormat::from_path(path)?;
-    let file = File::create(path).map_err(|e| Error::io(path, e))?;
-    write_events_to(BufWriter::new(file), format, events, path)
+    atomic_write(path, |w| write_events_to(w, format, events, path))
+}
+
+/// Write through a temporary file in the same directory, renamed over `path`
+/// only when complete, so an existing file is never left half-written.
+fn atomic_write(path: &Path, write: impl FnOnce(&mut BufWriter<File>) -> Result<()>) -> Result<()> {
+    let dir = match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
+        _ => std::path::PathBuf::from("."),
+    };
+    let tmp = tempfile::Builder::new()
+        .prefix(".telltale-")
+        .suffix(".tmp")
+        .tempfile_in(&dir)
+        .map_err(|e| Error::io(&dir, e))?;
+    let (file, tmp_path) = tmp.into_parts();
+    let mut w = BufWriter::new(file);
+    write(&mut w)?;
+    let file = w.into_inner().map_err(|e| Error::io(path, e.into_error()))?;
+    file.sync_all().map_err(|e| Error::io(path, e))?;
+    tmp_path.persist(path).map_err(|e| Error::io(path, e.error))?;
+    Ok(())
 }
 
 fn opt_time(t: Option<DateTime<Utc>>) -> String {
@@ -544,8 +564,7 @@ fn evidence_json(path: &Path, s: &Suspicion) -> Result<String> {
 pub fn write_suspicions(path: impl AsRef<Path>, items: &[Suspicion]) -> Result<()> {
     let path = path.as_ref();
     let format = FileFormat::from_path(path)?;
-    let file = File::create(path).map_err(|e| Error::io(path, e))?;
-    write_suspicions_to(BufWriter::new(file), format, items, path)
+    atomic_write(path, |w| write_suspicions_to(w, format, items, path))
 }
 
 /// Write suspicions in `format` to any writer (stdout included); `name` labels errors.
