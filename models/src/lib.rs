@@ -19,6 +19,7 @@
 //! ```
 
 pub mod autocorr;
+pub mod baseline;
 pub mod changepoint;
 pub mod dist;
 pub mod multitest;
