@@ -1,5 +1,6 @@
 //! End-to-end tests of the `telltale` binary: exit codes, the stdout/stderr
 //! split, and the files the demo writes.
+#![allow(clippy::unwrap_used, reason = "test code: a panic is a failed test")]
 
 use assert_cmd::Command;
 use predicates::prelude::*;

@@ -1,4 +1,5 @@
 //! telltale's cross-crate integration tests: one binary, one module per area.
+#![allow(clippy::unwrap_used, reason = "test code: a panic is a failed test")]
 
 mod golden_changepoint;
 mod golden_robust;

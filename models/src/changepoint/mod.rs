@@ -74,13 +74,14 @@ mod scale;
 /// Re-exported so callers can check parameter builders without naming linfa.
 pub use linfa::ParamGuard;
 
+pub use crate::dist::kolmogorov_sf;
 pub use ar1::{Ar1, Ar1Error};
 pub use cusum::{
     Alarm, Cusum, CusumDesign, CusumDesignError, CusumError, CusumParams, CusumParamsError,
     CusumTrace, CusumValidParams, SelfStartingCusum, Side, cusum, design_for_shift,
     design_threshold, siegmund_arl, two_sided_arl,
 };
-pub use ols_cusum::{OlsCusum, OlsCusumError, deviation_cusum, kolmogorov_sf, ols_cusum_test};
+pub use ols_cusum::{OlsCusum, OlsCusumError, deviation_cusum, ols_cusum_test};
 pub use page_hinkley::{
     Direction, PageHinkley, PageHinkleyError, PageHinkleyParams, PageHinkleyParamsError,
     PageHinkleyValidParams, PhAlarm, PhReference, PhTrace, page_hinkley,

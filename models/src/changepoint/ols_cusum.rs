@@ -1,4 +1,6 @@
-//! One-shot OLS-CUSUM test for a level change, with the Kolmogorov distribution.
+//! One-shot OLS-CUSUM test for a level change (p-value from the Kolmogorov distribution in [`crate::dist`]).
+
+use crate::dist::kolmogorov_sf;
 
 /// An invalid series for the OLS-CUSUM test.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -93,78 +95,9 @@ pub fn ols_cusum_test(y: &[f64]) -> Result<OlsCusum, OlsCusumError> {
     Ok(OlsCusum { statistic, p_value: kolmogorov_sf(statistic), argmax, max_abs_cusum })
 }
 
-/// Survival function of the Kolmogorov distribution (the law of
-/// sup |Brownian bridge|; scipy's `kstwobign`).
-///
-/// ```text
-/// x >= 1.18:  Q(x) = 2 sum_{k>=1} (-1)^{k-1} exp(-2 k^2 x^2)
-/// x <  1.18:  Q(x) = 1 - sqrt(2 pi) / x * sum_{k>=1} exp(-(2k - 1)^2 pi^2 / (8 x^2))
-/// Q(x) = 1 for x <= 0
-/// ```
-///
-/// Both series are the standard ones (the second by Jacobi's theta
-/// transformation); each is summed until the terms stop mattering in double
-/// precision, and the switch point keeps both rapidly convergent (at most a
-/// handful of terms) and avoids cancellation in the tail.
-///
-/// # References
-/// A. N. Kolmogorov (1933), "Sulla determinazione empirica di una legge di distribuzione",
-/// Giornale dell'Istituto Italiano degli Attuari 4, 83-91.
-/// W. Feller (1948), "On the Kolmogorov–Smirnov limit theorems for empirical distributions",
-/// Annals of Mathematical Statistics 19(2), 177-189.
-pub fn kolmogorov_sf(x: f64) -> f64 {
-    if x.is_nan() {
-        return f64::NAN;
-    }
-    if x <= 0.0 {
-        return 1.0;
-    }
-    if x >= 1.18 {
-        let mut sum = 0.0;
-        let mut sign = 1.0;
-        for k in 1..=100 {
-            let kf = k as f64;
-            let term = (-2.0 * kf * kf * x * x).exp();
-            sum += sign * term;
-            if term < 1e-18 * sum.abs() {
-                break;
-            }
-            sign = -sign;
-        }
-        (2.0 * sum).clamp(0.0, 1.0)
-    } else {
-        let pi2 = std::f64::consts::PI * std::f64::consts::PI;
-        let mut sum = 0.0;
-        for k in 1..=100 {
-            let j = (2 * k - 1) as f64;
-            let term = (-j * j * pi2 / (8.0 * x * x)).exp();
-            sum += term;
-            if term < 1e-18 * sum {
-                break;
-            }
-        }
-        (1.0 - (2.0 * std::f64::consts::PI).sqrt() / x * sum).clamp(0.0, 1.0)
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn kolmogorov_sf_known_quantiles() {
-        // Classical critical values of sup|B|: P > 1.3581 = 0.05, P > 1.6276 = 0.01
-        // (Smirnov's table; from memory) -- checked against scipy in the golden test too.
-        assert!((kolmogorov_sf(1.3581) - 0.05).abs() < 1e-4);
-        assert!((kolmogorov_sf(1.6276) - 0.01).abs() < 1e-4);
-        // the two series agree at the switch point
-        let x: f64 = 1.18;
-        let alt = 2.0
-            * (1..50)
-                .map(|k| (-1f64).powi(k - 1) * (-2.0 * (k * k) as f64 * x * x).exp())
-                .sum::<f64>();
-        assert!((kolmogorov_sf(x - 1e-12) - alt).abs() < 1e-12);
-    }
 
     #[test]
     fn constant_series_is_an_error() {
