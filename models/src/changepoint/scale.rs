@@ -1,26 +1,8 @@
-//! Small private scale helpers (kept local so the change-point code does not
-//! depend on the robust module's evolving API).
+//! Small scale helpers of the change-point code, on top of [`crate::robust`].
 
-use statrs::distribution::{ContinuousCDF, Normal};
-
-/// Median of finite values; `None` for an empty slice. Sorts a copy.
-pub(crate) fn median(x: &[f64]) -> Option<f64> {
-    if x.is_empty() {
-        return None;
-    }
-    let mut v = x.to_vec();
-    v.sort_by(f64::total_cmp);
-    let n = v.len();
-    Some(if n % 2 == 1 { v[n / 2] } else { 0.5 * (v[n / 2 - 1] + v[n / 2]) })
-}
-
-/// MAD scaled to be consistent for the normal sigma: `median|x - median(x)| / Phi^-1(3/4)`
-/// (the `scale='normal'` convention of scipy and statsmodels, 1.482602218505602).
+/// MAD scaled to be consistent for the normal sigma, 1.482602218505602 (see [`crate::robust::mad`]).
 pub(crate) fn mad_normal(x: &[f64]) -> Option<f64> {
-    let m = median(x)?;
-    let dev: Vec<f64> = x.iter().map(|v| (v - m).abs()).collect();
-    let q75 = Normal::standard().inverse_cdf(0.75);
-    median(&dev).map(|d| d / q75)
+    crate::robust::mad(x)
 }
 
 /// `MAD(diff(y)) / sqrt(2)`: a noise sigma that ignores level shifts
@@ -43,11 +25,5 @@ mod tests {
         // (reference_vectors.json 1_mad, scipy 1.17.1)
         let got = mad_normal(&[1.0, 2.0, 3.0, 4.0, 100.0]).unwrap();
         assert!((got - 1.482602218505602).abs() < 1e-12);
-    }
-
-    #[test]
-    fn median_even_and_empty() {
-        assert_eq!(median(&[3.0, 1.0, 2.0, 10.0]), Some(2.5));
-        assert_eq!(median(&[]), None);
     }
 }

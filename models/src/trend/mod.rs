@@ -35,7 +35,7 @@
 //! narrow, so read `slope_low..slope_high` as a lower bound on the uncertainty
 //! for autocorrelated data (or compute it on block means).
 
-mod kendall;
+pub(crate) mod kendall;
 mod mann_kendall;
 mod theil_sen;
 

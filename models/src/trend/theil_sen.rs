@@ -263,20 +263,9 @@ pub(crate) fn sen_slope_index(y: &[f64]) -> Option<f64> {
     Some(SlopeSelector::new(&t, y).median())
 }
 
+/// Median of the finite values of `v`; NaN when there are none.
 pub(crate) fn median_of(v: &[f64]) -> f64 {
-    let mut s = v.to_vec();
-    let n = s.len();
-    if n == 0 {
-        return f64::NAN;
-    }
-    let (_, hi, _) = s.select_nth_unstable_by(n / 2, f64::total_cmp);
-    let hi = *hi;
-    if n % 2 == 1 {
-        hi
-    } else {
-        let lo = s[..n / 2].iter().copied().fold(f64::NEG_INFINITY, f64::max);
-        0.5 * (lo + hi)
-    }
+    crate::robust::median(v).unwrap_or(f64::NAN)
 }
 
 /// Tiny deterministic generator (SplitMix64) for sampling pairs; the slope

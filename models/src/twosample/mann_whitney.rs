@@ -247,7 +247,7 @@ impl MannWhitneyValidParams {
         // tie term Σ(t³ - t)
         let mut sorted = pooled.clone();
         sorted.sort_by(f64::total_cmp);
-        let groups = super::tie_groups(&sorted);
+        let groups = crate::trend::kendall::tie_groups_sorted(&sorted);
         let tied_values: u64 = groups.iter().sum();
         let tie_term: f64 = groups.iter().map(|&t| (t as f64).powi(3) - t as f64).sum();
         let total = nf + mf;

@@ -60,37 +60,6 @@ pub use mann_whitney::{
     MannWhitneyValidParams, UMethod, mann_whitney,
 };
 
-/// Sizes (> 1) of groups of equal values in an ascending slice.
-fn tie_groups(sorted: &[f64]) -> Vec<u64> {
-    let mut out = Vec::new();
-    let mut i = 0;
-    while i < sorted.len() {
-        let mut j = i + 1;
-        while j < sorted.len() && sorted[j] == sorted[i] {
-            j += 1;
-        }
-        if j - i > 1 {
-            out.push((j - i) as u64);
-        }
-        i = j;
-    }
-    out
-}
-
-/// Median (mean of the middle two for even length); `v` must be non-empty.
-fn median(v: &[f64]) -> f64 {
-    let mut s = v.to_vec();
-    let n = s.len();
-    let (lo_part, hi, _) = s.select_nth_unstable_by(n / 2, f64::total_cmp);
-    let hi = *hi;
-    if n % 2 == 1 {
-        hi
-    } else {
-        let lo = lo_part.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-        0.5 * (lo + hi)
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;

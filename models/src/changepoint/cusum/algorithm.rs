@@ -32,8 +32,10 @@ pub struct Alarm {
     pub statistic: f64,
     /// N: consecutive periods the signalling sum has been > 0.
     pub run_length: usize,
-    /// Onset estimate: 0-based position of the last in-control observation
-    /// (`index - run_length`), `None` when the sum was positive since the start.
+    /// Onset estimate: 0-based position of the last in-control observation,
+    /// the one just before the signalling run began (`index - run_length`
+    /// when there are no gaps; gaps inside the run do not move it), `None`
+    /// when the sum was positive since the start.
     pub last_in_control: Option<usize>,
     /// Estimated new process mean, data units.
     pub shift_estimate: f64,
@@ -85,6 +87,11 @@ pub struct Cusum {
     lower: f64,
     n_upper: usize,
     n_lower: usize,
+    // Index of the first observation of the current positive run of each sum.
+    // Kept separately from `n_*` because gaps (non-finite values) advance
+    // `seen` without extending a run, so `index - n` would place the onset late.
+    upper_start: usize,
+    lower_start: usize,
     seen: usize,
     prev: Option<f64>,
 }
@@ -97,7 +104,17 @@ impl Cusum {
 
     /// A fresh chart (all sums 0).
     pub fn new(params: CusumValidParams) -> Self {
-        Self { params, upper: 0.0, lower: 0.0, n_upper: 0, n_lower: 0, seen: 0, prev: None }
+        Self {
+            params,
+            upper: 0.0,
+            lower: 0.0,
+            n_upper: 0,
+            n_lower: 0,
+            upper_start: 0,
+            lower_start: 0,
+            seen: 0,
+            prev: None,
+        }
     }
 
     /// The parameters.
@@ -163,6 +180,12 @@ impl Cusum {
         let k = self.params.drift;
         self.upper = (self.upper + z - k).max(0.0);
         self.lower = (self.lower - z - k).max(0.0);
+        if self.upper > 0.0 && self.n_upper == 0 {
+            self.upper_start = index;
+        }
+        if self.lower > 0.0 && self.n_lower == 0 {
+            self.lower_start = index;
+        }
         self.n_upper = if self.upper > 0.0 { self.n_upper + 1 } else { 0 };
         self.n_lower = if self.lower > 0.0 { self.n_lower + 1 } else { 0 };
         let h = self.params.threshold;
@@ -173,9 +196,9 @@ impl Cusum {
             (true, true) if self.upper >= self.lower => Side::Upper,
             (true, true) => Side::Lower,
         };
-        let (stat, n, sign) = match side {
-            Side::Upper => (self.upper, self.n_upper, 1.0),
-            Side::Lower => (self.lower, self.n_lower, -1.0),
+        let (stat, n, start, sign) = match side {
+            Side::Upper => (self.upper, self.n_upper, self.upper_start, 1.0),
+            Side::Lower => (self.lower, self.n_lower, self.lower_start, -1.0),
         };
         let p = &self.params;
         let scale = if p.ar1 != 0.0 {
@@ -189,7 +212,7 @@ impl Cusum {
             side,
             statistic: stat,
             run_length: n,
-            last_in_control: index.checked_sub(n),
+            last_in_control: start.checked_sub(1),
             shift_estimate: p.target + sign * scale * (k + stat / n as f64),
         })
     }

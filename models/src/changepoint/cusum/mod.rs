@@ -170,4 +170,35 @@ mod tests {
             }
         }
     }
+
+    // Montgomery Example 9.1 signals at period 29 with N+ = 7, last in-control
+    // period 22 (1-based; catalogue section 6 check A). Gaps (NaN) inserted
+    // inside the signalling run must not move the onset: it stays at the
+    // observation before the run began.
+    #[test]
+    fn gaps_inside_the_run_do_not_move_the_onset() {
+        let p = Cusum::params(10.0, 1.0).drift(0.5).threshold(5.0).check().unwrap();
+        let mut with_gaps: Vec<f64> = MONTGOMERY_9_1[..25].to_vec();
+        with_gaps.extend([f64::NAN, f64::NAN]);
+        with_gaps.extend_from_slice(&MONTGOMERY_9_1[25..]);
+        let mut chart = Cusum::new(p);
+        let alarm = with_gaps.iter().find_map(|&x| chart.update(x)).unwrap();
+        // period 29 is now stream position 30 (0-based), the run still began at 0-based 22
+        assert_eq!(alarm.index, 30);
+        assert_eq!(alarm.run_length, 7);
+        assert_eq!(alarm.last_in_control, Some(21));
+    }
+
+    #[test]
+    fn self_starting_onset_is_a_stream_position() {
+        // 30 in-control points (alternating +-1 around 0), then a gap, then a +6 shift:
+        // the run begins at the first shifted point, so the onset is the gap before it.
+        let mut x: Vec<f64> = (0..30).map(|i| if i % 2 == 0 { 1.0 } else { -1.0 }).collect();
+        x.push(f64::NAN);
+        x.extend(std::iter::repeat_n(6.0, 10));
+        let mut s = SelfStartingCusum::new(0.5, 5.0, false).unwrap();
+        let alarm = x.iter().find_map(|&v| s.update(v)).unwrap();
+        assert!(alarm.index > 30);
+        assert_eq!(alarm.last_in_control, Some(30), "{alarm:?}");
+    }
 }

@@ -2,7 +2,7 @@
 
 use statrs::distribution::{ContinuousCDF, Normal, StudentsT};
 
-use super::algorithm::{Alarm, Cusum};
+use super::algorithm::{Alarm, Cusum, Side};
 use super::error::CusumParamsError;
 use super::params::CusumParams;
 use linfa::ParamGuard;
@@ -46,6 +46,11 @@ pub struct SelfStartingCusum {
     m2: f64,
     seen: usize,
     last_score: Option<f64>,
+    // Stream positions where the chart's current upper / lower runs began:
+    // the inner chart counts scored points only, so its own indices are not
+    // stream positions.
+    upper_start: usize,
+    lower_start: usize,
 }
 
 impl SelfStartingCusum {
@@ -64,6 +69,8 @@ impl SelfStartingCusum {
             m2: 0.0,
             seen: 0,
             last_score: None,
+            upper_start: 0,
+            lower_start: 0,
         })
     }
 
@@ -103,10 +110,22 @@ impl SelfStartingCusum {
         }
         let alarm = self.score(x).and_then(|u| {
             self.last_score = Some(u);
-            self.chart.update_standardised(u).map(|mut a| {
-                let n = a.run_length;
+            let alarm = self.chart.update_standardised(u);
+            if self.chart.n_upper() == 1 {
+                self.upper_start = index;
+            }
+            if self.chart.n_lower() == 1 {
+                self.lower_start = index;
+            }
+            alarm.map(|mut a| {
+                let start = match (a.run_length, a.side) {
+                    // a run that began and signalled at this point (the chart may have reset)
+                    (1, _) => index,
+                    (_, Side::Upper) => self.upper_start,
+                    (_, Side::Lower) => self.lower_start,
+                };
                 a.index = index;
-                a.last_in_control = index.checked_sub(n);
+                a.last_in_control = start.checked_sub(1);
                 a
             })
         });

@@ -11,9 +11,11 @@ pub struct PhAlarm {
     pub index: usize,
     /// PH_T at the signal, data units.
     pub statistic: f64,
-    /// 0-based position where m_t last reached its minimum M_T: the change
-    /// onset estimate (`None` when the minimum is the initial M_0 = 0 of Variant B).
-    pub onset: Option<usize>,
+    /// Onset estimate, as for the CUSUM: the 0-based position of the last
+    /// in-control observation, where m_t last reached its minimum M_T (the
+    /// change begins at the next observation); `None` when the minimum is the
+    /// initial M_0 = 0 of Variant B, i.e. the change began at position 0.
+    pub last_in_control: Option<usize>,
 }
 
 /// Page–Hinkley test for a change in the mean, both published variants.
@@ -120,12 +122,16 @@ impl PageHinkley {
             Direction::Decrease => reference - x,
         };
         self.m += dev - self.params.delta;
-        if self.m < self.min_m {
+        if self.m <= self.min_m {
             self.min_m = self.m;
             self.argmin = Some(index);
         }
         let ph = self.m - self.min_m;
-        (ph > self.params.lambda).then_some(PhAlarm { index, statistic: ph, onset: self.argmin })
+        (ph > self.params.lambda).then_some(PhAlarm {
+            index,
+            statistic: ph,
+            last_in_control: self.argmin,
+        })
     }
 
     /// Feed one observation; returns the signal, if any.

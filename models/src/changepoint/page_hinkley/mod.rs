@@ -36,7 +36,7 @@ mod tests {
         assert_abs_diff_eq!(t.ph[7], 9.363095238, epsilon = 1e-9);
         assert_abs_diff_eq!(t.ph[9], 13.64087302, epsilon = 1e-8);
         assert_eq!(t.alarms[0].index + 1, 7); // T = 7
-        assert_eq!(t.alarms[0].onset, Some(4)); // minimum of m at T = 5
+        assert_eq!(t.alarms[0].last_in_control, Some(4)); // minimum of m at T = 5
     }
 
     #[test]
@@ -60,7 +60,7 @@ mod tests {
             assert!((a - b).abs() <= 1e-10 * (1.0 + b.abs()), "{a} vs {b}");
         }
         assert_eq!(ph.alarms[0].index + 1, 29);
-        assert_eq!(ph.alarms[0].onset.map(|i| i + 1), Some(22));
+        assert_eq!(ph.alarms[0].last_in_control.map(|i| i + 1), Some(22));
     }
 
     #[test]
