@@ -16,7 +16,16 @@ pub enum Error {
         #[source]
         source: std::io::Error,
     },
-    /// A Parquet or Arrow error on a named file.
+    /// A Parquet or Arrow error while writing a named file (a runtime failure, exit 1).
+    #[error("{path}: writing Parquet: {source}")]
+    ParquetWrite {
+        /// The file.
+        path: PathBuf,
+        /// The underlying error.
+        #[source]
+        source: parquet::errors::ParquetError,
+    },
+    /// A Parquet or Arrow error while reading a named file (the input is at fault, exit 2).
     #[error("{path}: {source}")]
     Parquet {
         /// The file.

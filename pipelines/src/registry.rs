@@ -184,9 +184,11 @@ impl Registry {
                 &path,
                 match line {
                     Some(l) => {
-                        format!("line {l}: {msg}; see DESIGN.md 4.2 for the registry format")
+                        format!(
+                            "line {l}: {msg}; see 'Fleet registry' in the README for the format"
+                        )
                     }
-                    None => format!("{msg}; see DESIGN.md 4.2 for the registry format"),
+                    None => format!("{msg}; see 'Fleet registry' in the README for the format"),
                 },
             )
         })?;

@@ -193,3 +193,36 @@ fn bad_suspicions_name_row_and_field() {
     assert!(e.to_string().contains("field `evidence`"), "{e}");
     assert!(FileFormat::from_path(Path::new("s.txt")).is_err());
 }
+
+#[test]
+fn suspicions_with_impossible_numbers_are_refused_before_anything_is_written() {
+    // JSON has no NaN: serde_json would write `null`, which no reader accepts back.
+    for (field, edit) in [
+        ("score", Box::new(|s: &mut Suspicion| s.score = f64::NAN) as Box<dyn Fn(&mut Suspicion)>),
+        ("score", Box::new(|s: &mut Suspicion| s.score = 1.5)),
+        ("magnitude", Box::new(|s: &mut Suspicion| s.magnitude = f64::INFINITY)),
+        ("rank", Box::new(|s: &mut Suspicion| s.rank = 0)),
+        ("statistic", Box::new(|s: &mut Suspicion| s.evidence[0].statistic = f64::NAN)),
+    ] {
+        let mut items = suspicions();
+        edit(items.first_mut().unwrap()); // the first item carries evidence
+        for f in [FileFormat::Csv, FileFormat::Jsonl] {
+            let mut buf = Vec::new();
+            let e = write_suspicions_to(&mut buf, f, &items, Path::new("out.jsonl")).unwrap_err();
+            assert!(e.to_string().contains(field), "{field}: {e}");
+            assert!(buf.is_empty(), "nothing is written when an item is refused");
+        }
+    }
+}
+
+#[test]
+fn suspicion_rank_zero_is_refused_on_read() {
+    let e = read_suspicions_from(
+        "id,rank,asset,sensor,class,mode,score,magnitude,onset,detected,summary,evidence\nx,0,a,,sensor_fault,bias,0.5,1,2026-03-02T00:00:00Z,2026-03-02T00:00:00Z,s,[]\n"
+            .as_bytes(),
+        FileFormat::Csv,
+        Path::new("s.csv"),
+    )
+    .unwrap_err();
+    assert!(e.to_string().contains("field `rank`"), "{e}");
+}

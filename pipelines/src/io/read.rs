@@ -271,7 +271,14 @@ impl HistoryReader {
     /// holds no Parquet file.
     pub fn try_new(path: impl AsRef<Path>) -> Result<Self> {
         let root = path.as_ref().to_path_buf();
-        let meta = std::fs::metadata(&root).map_err(|e| Error::io(&root, e))?;
+        let meta = std::fs::metadata(&root).map_err(|e| {
+            if e.kind() == std::io::ErrorKind::NotFound {
+                // the user named a path that is not there: bad input (exit 2), not a failure
+                Error::bad_input(&root, "no such file or directory; check the --history path")
+            } else {
+                Error::io(&root, e)
+            }
+        })?;
         let mut files = Vec::new();
         if meta.is_dir() {
             list_parquet(&root, &mut files)?;
@@ -360,7 +367,9 @@ impl HistoryReader {
         }
         let (path, reason) = match &err {
             Error::Io { path, source } => (path.clone(), source.to_string()),
-            Error::Parquet { path, source } => (path.clone(), source.to_string()),
+            Error::Parquet { path, source } | Error::ParquetWrite { path, source } => {
+                (path.clone(), source.to_string())
+            }
             Error::BadInput { path, message } => (path.clone(), message.clone()),
         };
         tracing::warn!(path = %path.display(), %reason, "skipping unreadable history");

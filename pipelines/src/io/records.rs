@@ -402,7 +402,7 @@ fn write_parquet(
 ) -> Result<()> {
     let batch = RecordBatch::try_new(schema.clone(), cols)
         .map_err(|e| Error::bad_input(name, format!("building a record batch: {e}")))?;
-    let pq = |source| Error::Parquet { path: name.to_path_buf(), source };
+    let pq = |source| Error::ParquetWrite { path: name.to_path_buf(), source };
     let mut writer = ArrowWriter::try_new(w, schema, None).map_err(pq)?;
     writer.write(&batch).map_err(pq)?;
     writer.close().map_err(pq)?;
@@ -438,7 +438,11 @@ fn text_at(a: &ArrayRef, i: usize) -> Option<String> {
             ms(a.as_primitive::<TimestampMillisecondType>().value(i))
         }
         DataType::Timestamp(TimeUnit::Second, _) => {
-            ms(a.as_primitive::<TimestampSecondType>().value(i) * 1000)
+            let secs = a.as_primitive::<TimestampSecondType>().value(i);
+            // An overflowing value becomes text that the RFC 3339 check rejects,
+            // naming the row and field.
+            secs.checked_mul(1000)
+                .map_or_else(|| Some(format!("{secs} seconds (out of range)")), ms)
         }
         DataType::Timestamp(TimeUnit::Microsecond, _) => {
             ms(a.as_primitive::<TimestampMicrosecondType>().value(i).div_euclid(1000))
@@ -523,6 +527,14 @@ fn validate_suspicion(at: &At<'_>, r: RawSuspicion) -> Result<Suspicion> {
     if !(0.0..=1.0).contains(&r.score) {
         return Err(at.err("score", format!("score {} is outside 0..1", r.score)));
     }
+    if r.rank == 0 {
+        return Err(at.err("rank", "rank must be a positive integer (1 = look first), got 0"));
+    }
+    if !r.magnitude.is_finite() {
+        return Err(
+            at.err("magnitude", format!("magnitude must be a finite number, got {}", r.magnitude))
+        );
+    }
     Ok(Suspicion {
         id: r.id,
         rank: r.rank,
@@ -537,6 +549,41 @@ fn validate_suspicion(at: &At<'_>, r: RawSuspicion) -> Result<Suspicion> {
         summary: r.summary,
         evidence: r.evidence,
     })
+}
+
+/// The numbers of a suspicion must be finite (and `score` in 0..1, `rank` >= 1) to be written.
+fn check_suspicion_numbers(name: &Path, k: usize, s: &Suspicion) -> Result<()> {
+    let bad = |field: &str, v: String| {
+        Err(Error::bad_input(
+            name,
+            format!(
+                "suspicion {} (id {}): {field} {v} cannot be written; numbers must be finite, \
+                 score in 0..1 and rank >= 1",
+                k + 1,
+                s.id
+            ),
+        ))
+    };
+    if !(0.0..=1.0).contains(&s.score) {
+        return bad("score", s.score.to_string());
+    }
+    if !s.magnitude.is_finite() {
+        return bad("magnitude", s.magnitude.to_string());
+    }
+    if s.rank == 0 {
+        return bad("rank", "0".into());
+    }
+    for e in &s.evidence {
+        for (field, v) in [("statistic", e.statistic), ("threshold", e.threshold)] {
+            if !v.is_finite() {
+                return bad(&format!("evidence `{}` {field}", e.test), v.to_string());
+            }
+        }
+        if let Some(p) = e.p_value.filter(|p| !(0.0..=1.0).contains(p)) {
+            return bad(&format!("evidence `{}` p_value", e.test), p.to_string());
+        }
+    }
+    Ok(())
 }
 
 fn suspicion_json(s: &Suspicion) -> serde_json::Value {
@@ -577,6 +624,11 @@ pub fn write_suspicions_to(
     items: &[Suspicion],
     name: &Path,
 ) -> Result<()> {
+    // Check everything before writing anything: JSON has no NaN or infinity
+    // (serde_json would write `null`, which no reader accepts back).
+    for (k, s) in items.iter().enumerate() {
+        check_suspicion_numbers(name, k, s)?;
+    }
     let io = |e: std::io::Error| Error::io(name, e);
     match format {
         FileFormat::Jsonl => {
@@ -779,13 +831,14 @@ fn read_suspicions_parquet(path: &Path) -> Result<Vec<Suspicion>> {
             let t = |k: usize| text_at(cols[k], i).unwrap_or_default();
             let raw = RawSuspicion {
                 id: t(0),
-                rank: rank.value(i),
+                // a null rank or number becomes 0 / NaN, which validation rejects by name
+                rank: if rank.is_null(i) { 0 } else { rank.value(i) },
                 asset: t(2),
                 sensor: text_at(cols[3], i),
                 class: t(4),
                 mode: t(5),
-                score: score.value(i),
-                magnitude: magnitude.value(i),
+                score: if score.is_null(i) { f64::NAN } else { score.value(i) },
+                magnitude: if magnitude.is_null(i) { f64::NAN } else { magnitude.value(i) },
                 onset: t(8),
                 detected: t(9),
                 summary: t(10),

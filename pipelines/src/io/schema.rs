@@ -16,8 +16,10 @@ use std::collections::HashMap;
 /// Earliest accepted reading time: 1900-01-01T00:00:00Z in epoch ms.
 ///
 /// A plausibility bound, not a format limit: a time outside
-/// [`MIN_TS_MS`, `MAX_TS_MS`) nearly always means a wrong unit (seconds
-/// stored as milliseconds, nanoseconds as seconds).
+/// [`MIN_TS_MS`, `MAX_TS_MS`) nearly always means a unit read too coarse
+/// (milliseconds or nanoseconds declared as seconds lands far past 2200).
+/// The opposite mistake (seconds declared as milliseconds) lands in January
+/// 1970, inside the bounds, and is not caught here.
 pub const MIN_TS_MS: i64 = -2_208_988_800_000;
 /// First rejected reading time: 2200-01-01T00:00:00Z in epoch ms.
 pub const MAX_TS_MS: i64 = 7_258_118_400_000;

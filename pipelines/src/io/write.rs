@@ -74,7 +74,7 @@ impl HistoryWriter {
             .build();
         let schema = Self::schema();
         let writer = ArrowWriter::try_new(file, schema.clone(), Some(props))
-            .map_err(|source| Error::Parquet { path: path.clone(), source })?;
+            .map_err(|source| Error::ParquetWrite { path: path.clone(), source })?;
         let batch_rows = options.batch_rows.max(1);
         Ok(Self {
             path,
@@ -137,7 +137,7 @@ impl HistoryWriter {
             .map_err(|e| Error::bad_input(&self.path, format!("building a record batch: {e}")))?;
         self.writer
             .write(&batch)
-            .map_err(|source| Error::Parquet { path: self.path.clone(), source })?;
+            .map_err(|source| Error::ParquetWrite { path: self.path.clone(), source })?;
         self.rows += self.pending as u64;
         self.pending = 0;
         Ok(())
@@ -154,7 +154,9 @@ impl HistoryWriter {
     /// A Parquet error if the final batch or the footer cannot be written.
     pub fn close(mut self) -> Result<u64> {
         self.flush()?;
-        self.writer.close().map_err(|source| Error::Parquet { path: self.path.clone(), source })?;
+        self.writer
+            .close()
+            .map_err(|source| Error::ParquetWrite { path: self.path.clone(), source })?;
         Ok(self.rows)
     }
 }
