@@ -343,11 +343,11 @@ fn simulate_pump<R: Rng>(
     let mut values: Vec<Vec<f64>> = (0..SENSORS.len()).map(|_| Vec::with_capacity(n)).collect();
     let (mut tw, mut tde, mut tnde) = (f64::NAN, f64::NAN, f64::NAN);
     let m = a.group_size.max(1) as i64;
-    let week_ms = 7 * 86_400;
+    let week_s = 7 * 86_400;
     for k in 0..n {
         let (hour, _) = clock(g, wd0, k);
         let t_s = k as i64 * g.dt_s;
-        let rot = (t_s - 6 * 3600).div_euclid(week_ms).rem_euclid(m);
+        let rot = (t_s - 6 * 3600).div_euclid(week_s).rem_euclid(m);
         let order = (a.slot as i64 - rot).rem_euclid(m);
         let n_run = env.running_count[k];
         let mut running = order < i64::from(n_run);
