@@ -32,18 +32,10 @@ pub enum Ar1Error {
 /// ```text
 /// r_1 = sum_{t=1}^{n-1} (x_t - xbar)(x_{t+1} - xbar) / sum_{t=1}^{n} (x_t - xbar)^2
 /// ```
-/// Returns 0 for fewer than 2 points or a constant series.
+/// Returns 0 for fewer than 2 points, a constant series or non-finite values
+/// (see [`crate::autocorr::autocorrelation`]).
 pub(crate) fn lag1_autocorrelation(x: &[f64]) -> f64 {
-    if x.len() < 2 {
-        return 0.0;
-    }
-    let mean = x.iter().sum::<f64>() / x.len() as f64;
-    let c0: f64 = x.iter().map(|v| (v - mean) * (v - mean)).sum();
-    if c0 <= 0.0 {
-        return 0.0;
-    }
-    let c1: f64 = x.windows(2).map(|w| (w[0] - mean) * (w[1] - mean)).sum();
-    c1 / c0
+    crate::autocorr::autocorrelation(x, 1).unwrap_or(0.0)
 }
 
 /// AR(1) working model `x_t - mu = phi (x_{t-1} - mu) + e_t`, fitted by Yule–Walker.

@@ -127,14 +127,8 @@ fn diffs(x: &[f64]) -> Vec<f64> {
 }
 
 fn lag1(d: &[f64]) -> f64 {
-    let n = d.len() as f64;
-    let mean = d.iter().sum::<f64>() / n;
-    let var: f64 = d.iter().map(|v| (v - mean) * (v - mean)).sum();
-    if var == 0.0 {
-        return 0.0;
-    }
-    let cov: f64 = d.windows(2).map(|w| (w[0] - mean) * (w[1] - mean)).sum();
-    (cov / var).clamp(-0.95, 0.95)
+    // the `acf` estimator of crate::autocorr, clamped so n_eff stays positive
+    crate::autocorr::autocorrelation(d, 1).unwrap_or(0.0).clamp(-0.95, 0.95)
 }
 
 /// Noise change: is the window's short-term spread larger than the baseline's?
