@@ -40,6 +40,7 @@
 
 pub mod error;
 pub mod io;
+pub mod jobs;
 pub mod record;
 pub mod registry;
 pub mod time;

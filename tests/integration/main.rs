@@ -6,3 +6,4 @@ mod golden_robust;
 mod golden_trend_twosample;
 mod io_files;
 mod io_reader;
+mod jobs_fit;

@@ -5,10 +5,12 @@
 //! before any data is read, so usage errors surface at once.
 
 mod demo;
+mod fit;
 
 use clap::{Parser, Subcommand};
 
 pub use demo::DemoArgs;
+pub use fit::FitArgs;
 
 /// telltale: tells a failing sensor from a real process change from a developing
 /// equipment fault, with evidence.
@@ -35,6 +37,8 @@ pub struct Cli {
 pub enum Command {
     /// Generate the demo fleet (a water utility's pumping stations) with its ground truth
     Demo(DemoArgs),
+    /// Learn per-asset baselines from history in [--from, --until) and write them to --store
+    Fit(FitArgs),
 }
 
 /// Run the parsed command.
@@ -44,5 +48,6 @@ pub enum Command {
 pub fn dispatch(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(&args, cli.quiet),
+        Command::Fit(args) => fit::run(&args),
     }
 }

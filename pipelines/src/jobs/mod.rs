@@ -1,0 +1,21 @@
+//! The batch jobs built on the readers and the models.
+//!
+//! - [`fit`]: `telltale fit`, learning each asset's baseline from history
+//!   and writing it to the [`store`].
+//! - [`store`]: the baseline store directory (one JSON file per asset and a
+//!   manifest), written atomically.
+//!
+//! ```no_run
+//! use telltale_pipelines::jobs::{FitSettings, run_fit};
+//! let mut settings = FitSettings::new("history.parquet", 1_778_025_600_000, "store/");
+//! settings.registry = Some("fleet.toml".into());
+//! let report = run_fit(&settings)?;
+//! println!("{} baselines written", report.assets_fitted.len());
+//! # Ok::<(), telltale_pipelines::Error>(())
+//! ```
+
+pub mod fit;
+pub mod store;
+
+pub use fit::{FailedAsset, FailureKind, FitOutcome, FitReport, FitSettings, FittedAsset, run_fit};
+pub use store::{Manifest, ManifestEntry, Store, StoredBaseline, StoredRole, StoredSensor};
