@@ -226,3 +226,12 @@ fn suspicion_rank_zero_is_refused_on_read() {
     .unwrap_err();
     assert!(e.to_string().contains("field `rank`"), "{e}");
 }
+
+#[test]
+fn events_csv_with_a_byte_order_mark_parses() {
+    // spreadsheet exports often start with a UTF-8 byte order mark
+    let text = format!("\u{feff}{DESIGN_EVENTS}");
+    let got = read_events_from(text.as_bytes(), FileFormat::Csv, Path::new("e.csv")).unwrap();
+    let want = read_events_from(DESIGN_EVENTS.as_bytes(), FileFormat::Csv, Path::new("e.csv"));
+    assert_eq!(got, want.unwrap());
+}
