@@ -38,7 +38,7 @@ pub struct FitArgs {
     /// Skip unreadable history files (each is reported) instead of failing
     #[arg(long)]
     pub skip_bad_files: bool,
-    /// Assets fitted in parallel (default: the available cores; 1 = sequential)
+    /// Threads for decoding and fitting (default: the available cores; 1 = sequential)
     #[arg(short = 'j', long)]
     pub threads: Option<usize>,
 }
@@ -88,6 +88,14 @@ impl FitArgs {
 
 pub(crate) fn run(args: &FitArgs) -> anyhow::Result<()> {
     let settings = args.settings()?;
+    if let Some(n) = args.threads {
+        // The history reader decodes on rayon's global pool: size it too, so
+        // `-j1` really is the single-threaded path. It can only be set once
+        // per process; a second call keeps the first size.
+        if rayon::ThreadPoolBuilder::new().num_threads(n).build_global().is_err() {
+            tracing::debug!("rayon's global pool was already set up; -j applies to fitting only");
+        }
+    }
     tracing::info!(
         history = %args.history.display(),
         store = %args.store.display(),
