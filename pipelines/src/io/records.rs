@@ -223,6 +223,31 @@ pub fn read_events(path: impl AsRef<Path>) -> Result<Vec<Event>> {
     read_events_from(BufReader::new(file), format, path)
 }
 
+/// A CSV reader whose header row must be exactly `columns`, in order;
+/// `wanted` words the error ("columns are ...; {wanted} a,b,c").
+fn csv_with_header<R: Read>(
+    r: R,
+    name: &Path,
+    columns: &[&str],
+    wanted: &str,
+) -> Result<csv::Reader<R>> {
+    let mut rdr = csv::ReaderBuilder::new().has_headers(true).from_reader(r);
+    let header =
+        rdr.headers().map_err(|e| Error::bad_input(name, format!("row 1 (header): {e}")))?;
+    let got: Vec<&str> = header.iter().collect();
+    if got != columns {
+        return Err(Error::bad_input(
+            name,
+            format!(
+                "row 1 (header): columns are {:?}; {wanted} {}",
+                got.join(","),
+                columns.join(",")
+            ),
+        ));
+    }
+    Ok(rdr)
+}
+
 /// Read events in a text format from any reader; `name` labels errors.
 ///
 /// # Errors
@@ -230,21 +255,7 @@ pub fn read_events(path: impl AsRef<Path>) -> Result<Vec<Event>> {
 pub fn read_events_from(r: impl Read, format: FileFormat, name: &Path) -> Result<Vec<Event>> {
     match format {
         FileFormat::Csv => {
-            let mut rdr = csv::ReaderBuilder::new().has_headers(true).from_reader(r);
-            let header = rdr
-                .headers()
-                .map_err(|e| Error::bad_input(name, format!("row 1 (header): {e}")))?;
-            let got: Vec<&str> = header.iter().collect();
-            if got != EVENT_COLUMNS {
-                return Err(Error::bad_input(
-                    name,
-                    format!(
-                        "row 1 (header): columns are {:?}; an event file needs exactly {}",
-                        got.join(","),
-                        EVENT_COLUMNS.join(",")
-                    ),
-                ));
-            }
+            let mut rdr = csv_with_header(r, name, &EVENT_COLUMNS, "an event file needs exactly")?;
             let mut out = Vec::new();
             for (i, rec) in rdr.records().enumerate() {
                 let at = At { path: name, row: format!("row {} (header is row 1)", i + 2) };
@@ -753,21 +764,7 @@ pub fn read_suspicions_from(
             Ok(out)
         }
         FileFormat::Csv => {
-            let mut rdr = csv::ReaderBuilder::new().has_headers(true).from_reader(r);
-            let header = rdr
-                .headers()
-                .map_err(|e| Error::bad_input(name, format!("row 1 (header): {e}")))?;
-            let got: Vec<&str> = header.iter().collect();
-            if got != SUSPICION_COLUMNS {
-                return Err(Error::bad_input(
-                    name,
-                    format!(
-                        "row 1 (header): columns are {:?}; expected {}",
-                        got.join(","),
-                        SUSPICION_COLUMNS.join(",")
-                    ),
-                ));
-            }
+            let mut rdr = csv_with_header(r, name, &SUSPICION_COLUMNS, "expected")?;
             let mut out = Vec::new();
             for (i, rec) in rdr.records().enumerate() {
                 let at = At { path: name, row: format!("row {} (header is row 1)", i + 2) };
