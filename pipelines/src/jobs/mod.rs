@@ -2,6 +2,8 @@
 //!
 //! - [`fit`]: `telltale fit`, learning each asset's baseline from history
 //!   and writing it to the [`store`].
+//! - [`naive`]: a deliberately naive comparison detector (hourly robust
+//!   z-scores, every finding a sensor bias), a benchmark yardstick.
 //! - [`store`]: the baseline store directory (one JSON file per asset and a
 //!   manifest), written atomically.
 //!
@@ -15,7 +17,9 @@
 //! ```
 
 pub mod fit;
+pub mod naive;
 pub mod store;
 
 pub use fit::{FailedAsset, FailureKind, FitOutcome, FitReport, FitSettings, FittedAsset, run_fit};
+pub use naive::{NaiveSettings, run_naive};
 pub use store::{Manifest, ManifestEntry, Store, StoredBaseline, StoredRole, StoredSensor};
