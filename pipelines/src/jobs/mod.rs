@@ -6,6 +6,9 @@
 //!   z-scores, every finding a sensor bias), a benchmark yardstick.
 //! - [`store`]: the baseline store directory (one JSON file per asset and a
 //!   manifest), written atomically.
+//! - [`mod@evaluate`]: `telltale evaluate`, detection quality of suspicions
+//!   against ground-truth events (recall, verdict accuracy, delay, lead time,
+//!   false alarms per 100 asset-weeks).
 //!
 //! ```no_run
 //! use telltale_pipelines::jobs::{FitSettings, run_fit};
@@ -16,10 +19,17 @@
 //! # Ok::<(), telltale_pipelines::Error>(())
 //! ```
 
+pub mod evaluate;
 pub mod fit;
 pub mod naive;
 pub mod store;
 
+pub use evaluate::{
+    BestMatch, ClassScore, CleanAssets, ConfusionRow, EvaluateSettings, EvaluationReport,
+    EventCounts, EventOutcome, FailureOutcome, FalseAlarm, FalseAlarmReport,
+    InvalidEvaluateSettings, LeadMark, LeadTimeReport, ModeScore, Outage, Score, SettingsEcho,
+    SuspicionCounts, WindowOpen, evaluate, read_outages, read_outages_from,
+};
 pub use fit::{FailedAsset, FailureKind, FitOutcome, FitReport, FitSettings, FittedAsset, run_fit};
 pub use naive::{NaiveSettings, run_naive};
 pub use store::{Manifest, ManifestEntry, Store, StoredBaseline, StoredRole, StoredSensor};

@@ -5,11 +5,13 @@
 //! before any data is read, so usage errors surface at once.
 
 mod demo;
+mod evaluate;
 mod fit;
 
 use clap::{Parser, Subcommand};
 
 pub use demo::DemoArgs;
+pub use evaluate::EvaluateArgs;
 pub use fit::FitArgs;
 
 /// telltale: tells a failing sensor from a real process change from a developing
@@ -39,6 +41,8 @@ pub enum Command {
     Demo(DemoArgs),
     /// Learn per-asset baselines from history in [--from, --until) and write them to --store
     Fit(FitArgs),
+    /// Measure detection quality: suspicions in [--from, --to) against ground-truth events
+    Evaluate(EvaluateArgs),
 }
 
 /// Run the parsed command.
@@ -49,5 +53,6 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(&args, cli.quiet),
         Command::Fit(args) => fit::run(&args),
+        Command::Evaluate(args) => evaluate::run(&args),
     }
 }
