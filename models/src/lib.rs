@@ -39,6 +39,7 @@ pub mod robust;
 pub mod signatures;
 pub mod trend;
 pub mod twosample;
+pub mod verdict;
 
 /// Re-exported so callers can check parameter builders without naming linfa.
 pub use linfa::ParamGuard;

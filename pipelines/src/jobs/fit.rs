@@ -48,6 +48,7 @@ use telltale_models::baseline::{
     AssetBaseline, AssetBaselineValidParams, BaselineError, SensorRole, SensorSeries,
     SensorSpec as ModelSpec,
 };
+use telltale_models::verdict::{Calibration, VerdictParams, calibrate};
 
 /// Settings of one fit run; build with [`FitSettings::new`] and set the
 /// public fields.
@@ -73,6 +74,8 @@ pub struct FitSettings {
     pub threads: usize,
     /// Fit only these assets (empty: every asset); the others' baselines stay untouched.
     pub assets: Vec<String>,
+    /// Verdict-engine settings the calibration is made for.
+    pub verdict: VerdictParams,
 }
 
 impl FitSettings {
@@ -94,6 +97,7 @@ impl FitSettings {
             params,
             threads: 0,
             assets: Vec::new(),
+            verdict: VerdictParams::default(),
         }
     }
 
@@ -258,7 +262,7 @@ fn fit_one(ctx: &RunCtx<'_>, p: &Pending) -> Result<Done> {
             spec: model_spec(spec),
         })
         .collect();
-    let baseline = match ctx.settings.params.fit(&series, None, None) {
+    let (baseline, calibration) = match fit_and_calibrate(ctx.settings, &series) {
         Ok(b) => b,
         Err(e) => {
             let kind = classify(&e);
@@ -286,6 +290,7 @@ fn fit_one(ctx: &RunCtx<'_>, p: &Pending) -> Result<Done> {
         fit_from: ctx.fit_from.clone(),
         fit_until: ctx.fit_until.clone(),
         baseline,
+        calibration: Some(calibration),
     };
     let file = ctx.store.write_baseline(&stored)?;
     let b = &stored.baseline;
@@ -316,6 +321,69 @@ fn fit_one(ctx: &RunCtx<'_>, p: &Pending) -> Result<Done> {
         telltale_version: TELLTALE_VERSION.to_owned(),
     };
     Ok(Done::Fitted(fitted, entry))
+}
+
+/// Fits the baseline on half of the asset's fit span and calibrates the
+/// verdict engine on the other half, scored as if it were new (see
+/// [`telltale_models::verdict::calibrate`](mod@telltale_models::verdict::calibrate)).
+///
+/// The span is cut into chunks of `clamp(span / 6, one block, 2 days)`
+/// (rounded to whole blocks); even chunks train, odd chunks are held out.
+/// Interleaving, rather than a train-then-test split, lets both halves see
+/// every duty pattern (pumps that swap duty weekly, weekend stops); chunks
+/// of days keep the slow autocorrelation of the held-out blocks realistic.
+fn fit_and_calibrate(
+    settings: &FitSettings,
+    series: &[SensorSeries<'_>],
+) -> std::result::Result<(AssetBaseline, Calibration), BaselineError> {
+    let v = &settings.verdict;
+    let first = series.iter().filter_map(|s| s.usable().next().map(|(t, _)| t)).min();
+    let last = series.iter().filter_map(|s| s.usable().last().map(|(t, _)| t)).max();
+    let (Some(first), Some(last)) = (first, last) else {
+        return Err(BaselineError::NoReadings);
+    };
+    let end = (last + 1).min(settings.until_ms);
+    let span = (end - first).max(1);
+    let chunk = (span / 6).clamp(v.block_ms, 2 * 86_400_000);
+    let chunk = (chunk / v.block_ms).max(1) * v.block_ms;
+    let base = first.div_euclid(v.block_ms) * v.block_ms;
+    let train_of = |t: i64| ((t - base) / chunk) % 2 == 0;
+    // training copies: readings of the even chunks only
+    let kept: Vec<(Vec<i64>, Vec<f64>, Vec<bool>)> = series
+        .iter()
+        .map(|s| {
+            let mut out = (Vec::new(), Vec::new(), Vec::new());
+            for i in 0..s.ts_ms.len() {
+                if train_of(s.ts_ms[i]) {
+                    out.0.push(s.ts_ms[i]);
+                    out.1.push(s.values[i]);
+                    out.2.push(s.good[i]);
+                }
+            }
+            out
+        })
+        .collect();
+    let train: Vec<SensorSeries<'_>> = series
+        .iter()
+        .zip(&kept)
+        .map(|(s, k)| SensorSeries { ts_ms: &k.0, values: &k.1, good: &k.2, spec: s.spec })
+        .collect();
+    let baseline = settings.params.fit(&train, Some(first), Some(end))?;
+    let frame = baseline.align(series, Some(baseline.fit_start_ms), Some(end))?;
+    let held: Vec<bool> =
+        (0..frame.n_rows()).map(|r| !train_of(frame.row_start_ms(r))).collect();
+    let cal = calibrate(
+        &baseline,
+        frame.values.view(),
+        frame.origin_ms,
+        &held,
+        v.block_ms,
+        v.spike_factor,
+        v.min_fill,
+        v.occupancy_window,
+        v.cusum_k,
+    );
+    Ok((baseline, cal))
 }
 
 /// Fits a batch, in parallel on `pool` (sequentially without one); results in batch order.

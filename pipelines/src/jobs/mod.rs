@@ -4,6 +4,8 @@
 //!   and writing it to the [`store`].
 //! - [`naive`]: a deliberately naive comparison detector (hourly robust
 //!   z-scores, every finding a sensor bias), a benchmark yardstick.
+//! - [`scan`]: `telltale scan`, judging new history against the stored
+//!   baselines and reporting ranked suspicions with evidence.
 //! - [`store`]: the baseline store directory (one JSON file per asset and a
 //!   manifest), written atomically.
 //! - [`mod@evaluate`]: `telltale evaluate`, detection quality of suspicions
@@ -22,6 +24,7 @@
 pub mod evaluate;
 pub mod fit;
 pub mod naive;
+pub mod scan;
 pub mod store;
 
 pub use evaluate::{
@@ -32,4 +35,5 @@ pub use evaluate::{
 };
 pub use fit::{FailedAsset, FailureKind, FitOutcome, FitReport, FitSettings, FittedAsset, run_fit};
 pub use naive::{NaiveSettings, run_naive};
+pub use scan::{ScanReport, ScanSettings, run_scan};
 pub use store::{Manifest, ManifestEntry, Store, StoredBaseline, StoredRole, StoredSensor};

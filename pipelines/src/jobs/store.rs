@@ -29,6 +29,7 @@ use serde::{Deserialize, Serialize};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use telltale_models::baseline::{AssetBaseline, BASELINE_VERSION};
+use telltale_models::verdict::Calibration;
 
 /// Format version of [`StoredBaseline`] and [`Manifest`]; bumped when their
 /// layout changes. Files of another version are refused with a message to re-fit.
@@ -100,6 +101,10 @@ pub struct StoredBaseline {
     pub fit_until: String,
     /// The fitted baseline (its `fit_start_ms`/`fit_end_ms` give the grid actually covered).
     pub baseline: AssetBaseline,
+    /// The scan's calibration on the held-out end of the fit span (`None` in
+    /// stores written before it existed: re-run `telltale fit`).
+    #[serde(default)]
+    pub calibration: Option<Calibration>,
 }
 
 /// One asset's line in the [`Manifest`].

@@ -8,7 +8,9 @@ use std::collections::BTreeMap;
 use std::io::Write;
 use std::path::PathBuf;
 use telltale_datasets::{FleetParams, generate_fleet};
-use telltale_pipelines::io::write_events;
+use telltale_pipelines::io::{FileFormat, write_events};
+use telltale_pipelines::jobs::{FitSettings, ScanSettings, run_fit, run_scan};
+use telltale_pipelines::record::Suspicion;
 use telltale_pipelines::time::format_time;
 
 /// Size presets of the demo fleet.
@@ -52,6 +54,12 @@ pub struct DemoArgs {
     /// Multiplies every sensor's measurement noise (1 = as designed)
     #[arg(long)]
     pub noise: Option<f64>,
+    /// Only generate the fleet and its truth; do not fit or scan
+    #[arg(long)]
+    pub generate_only: bool,
+    /// Suspicions shown in the table on stdout (all are in suspicions.jsonl)
+    #[arg(long, default_value_t = 15)]
+    pub top: usize,
 }
 
 impl DemoArgs {
@@ -90,6 +98,10 @@ impl DemoArgs {
 pub(crate) const EVENTS_FILE: &str = "events.csv";
 /// Name of the whole-asset outages file (coverage facts, not events).
 pub(crate) const OUTAGES_FILE: &str = "outages.csv";
+/// Name of the suspicions file the demo's scan writes.
+pub(crate) const SUSPICIONS_FILE: &str = "suspicions.jsonl";
+/// Name of the baseline store folder in the demo directory.
+pub(crate) const STORE_DIR: &str = "store";
 
 pub(crate) fn run(args: &DemoArgs, _quiet: bool) -> anyhow::Result<()> {
     // Stage 1: check every setting before any work.
@@ -152,6 +164,107 @@ pub(crate) fn run(args: &DemoArgs, _quiet: bool) -> anyhow::Result<()> {
         writeln!(out, "{class:<16} {mode:<14} {n:>6}")?;
     }
     out.flush()?;
+    drop(out);
+    if args.generate_only {
+        return Ok(());
+    }
+    fit_and_scan(args, &summary)
+}
+
+/// Fits on the demo's clean weeks, scans the rest, writes suspicions.jsonl
+/// and prints the top of the ranked list.
+fn fit_and_scan(args: &DemoArgs, summary: &telltale_datasets::FleetSummary) -> anyhow::Result<()> {
+    let t = &summary.timeline;
+    let store = args.out.join(STORE_DIR);
+    let mut fit = FitSettings::new(&summary.history, t.fit.end.timestamp_millis(), &store);
+    fit.registry = Some(summary.registry.clone());
+    fit.from_ms = Some(t.fit.start.timestamp_millis());
+    tracing::info!(store = %store.display(), "fitting baselines on the clean weeks");
+    let fitted = run_fit(&fit).context("fitting the demo fleet's baselines")?;
+    tracing::info!(
+        assets = fitted.assets_fitted.len(),
+        seconds = format!("{:.1}", fitted.seconds),
+        "baselines written"
+    );
+    let mut scan = ScanSettings::new(
+        &summary.history,
+        &store,
+        t.scan.start.timestamp_millis(),
+        t.scan.end.timestamp_millis(),
+    );
+    scan.registry = Some(summary.registry.clone());
+    tracing::info!("scanning the rest of the history");
+    let report = run_scan(&scan).context("scanning the demo fleet")?;
+    super::scan::log_report(&report);
+    let sus_path = args.out.join(SUSPICIONS_FILE);
+    super::scan::write_out(&report.suspicions, Some(&sus_path), FileFormat::Jsonl)?;
+
+    let mut out = std::io::stdout().lock();
+    writeln!(out)?;
+    writeln!(
+        out,
+        "fit {} baselines in {:.1} s; scanned {} assets in {:.1} s: {} suspicions",
+        fitted.assets_fitted.len(),
+        fitted.seconds,
+        report.assets_scanned,
+        report.seconds,
+        report.suspicions.len()
+    )?;
+    writeln!(out)?;
+    print_top(&mut out, &report.suspicions, args.top)?;
+    writeln!(out)?;
+    writeln!(out, "  suspicions {}", sus_path.display())?;
+    writeln!(out, "  baselines  {}", store.display())?;
+    writeln!(
+        out,
+        "  measure    telltale evaluate --suspicions {} --events {} --outages {} --fleet {} \\\n             --from {} --to {}",
+        sus_path.display(),
+        args.out.join(EVENTS_FILE).display(),
+        args.out.join(OUTAGES_FILE).display(),
+        summary.registry.display(),
+        format_time(t.scan.start),
+        format_time(t.scan.end)
+    )?;
+    writeln!(
+        out,
+        "telltale is decision support, not a protective or safety function: follow site \
+         procedures before acting."
+    )?;
+    out.flush()?;
+    Ok(())
+}
+
+/// The ranked list as a table: one line per suspicion, the summary below it.
+fn print_top(out: &mut impl Write, items: &[Suspicion], top: usize) -> std::io::Result<()> {
+    let aw = items.iter().take(top).map(|s| s.asset.len()).max().unwrap_or(5).max(5);
+    let sw = items
+        .iter()
+        .take(top)
+        .map(|s| s.sensor.as_deref().map_or(1, str::len))
+        .max()
+        .unwrap_or(6)
+        .max(6);
+    writeln!(
+        out,
+        "{:>4}  {:<aw$}  {:<sw$}  {:<30}  {:>5}  {:<20}",
+        "rank", "asset", "sensor", "verdict", "score", "onset"
+    )?;
+    for s in items.iter().take(top) {
+        writeln!(
+            out,
+            "{:>4}  {:<aw$}  {:<sw$}  {:<30}  {:>5.2}  {:<20}",
+            s.rank,
+            s.asset,
+            s.sensor.as_deref().unwrap_or("-"),
+            format!("{}/{}", s.class, s.mode),
+            s.score,
+            format_time(s.onset)
+        )?;
+        writeln!(out, "      {}", s.summary)?;
+    }
+    if items.len() > top {
+        writeln!(out, "  ... {} more in the file", items.len() - top)?;
+    }
     Ok(())
 }
 

@@ -7,12 +7,14 @@
 mod demo;
 mod evaluate;
 mod fit;
+mod scan;
 
 use clap::{Parser, Subcommand};
 
 pub use demo::DemoArgs;
 pub use evaluate::EvaluateArgs;
 pub use fit::FitArgs;
+pub use scan::ScanArgs;
 
 /// telltale: tells a failing sensor from a real process change from a developing
 /// equipment fault, with evidence.
@@ -41,6 +43,8 @@ pub enum Command {
     Demo(DemoArgs),
     /// Learn per-asset baselines from history in [--from, --until) and write them to --store
     Fit(FitArgs),
+    /// Judge history in [--from, --to) against the stored baselines; write ranked suspicions
+    Scan(ScanArgs),
     /// Measure detection quality: suspicions in [--from, --to) against ground-truth events
     Evaluate(EvaluateArgs),
 }
@@ -53,6 +57,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(&args, cli.quiet),
         Command::Fit(args) => fit::run(&args),
+        Command::Scan(args) => scan::run(&args),
         Command::Evaluate(args) => evaluate::run(&args),
     }
 }
