@@ -6,7 +6,7 @@
 #![allow(clippy::unwrap_used, clippy::expect_used, reason = "a diagnostic tool")]
 
 use telltale_models::baseline::{SensorSeries, align};
-use telltale_models::verdict::{Channel, VerdictParams, block_u, evaluate_asset};
+use telltale_models::verdict::{Channel, VerdictParams, block_u, evaluate_asset, sustained};
 use telltale_pipelines::HistoryReader;
 use telltale_pipelines::jobs::Store;
 use telltale_pipelines::time::parse_time;
@@ -81,8 +81,9 @@ fn main() {
                 );
             }
             for ep in &e.episodes {
+                let last = e.blocks.len() - 1;
                 println!(
-                    "{:?} {:?} side {} onset {} det {} end {:?} stat {:.1} thr {:.1} mag {:.2} p {:.2e}",
+                    "{:?} {:?} side {} onset {} det {} end {:?} stat {:.1} thr {:.1} mag {:.2} p {:.2e} sustained {:.2}",
                     ep.channel,
                     ep.sensor.map(|s| st.sensors[s].id.clone()),
                     ep.side,
@@ -92,7 +93,8 @@ fn main() {
                     ep.statistic,
                     ep.threshold,
                     ep.magnitude,
-                    ep.p_value
+                    ep.p_value,
+                    sustained(&e.blocks, &cal, ep, last)
                 );
             }
             Ok(())

@@ -16,6 +16,10 @@
 //! fallback, resolution floor) and the residual AR(1) φ come from every fit
 //! row. Residual units: those of the sensor; `residual z = r / scale`.
 //!
+//! Each IRLS step forms `XᵀWX` as `XᵀX − Σ (1 − w_i) x_i x_iᵀ` over the
+//! down-weighted rows only (`XᵀX` once per fit), since Huber weights are 1
+//! for most rows; the result equals direct accumulation up to rounding.
+//!
 //! # References
 //! P. J. Huber (1973), "Robust regression: asymptotics, conjectures and Monte
 //! Carlo", *Annals of Statistics* 1(5), 799-821; P. W. Holland and R. E.
@@ -164,19 +168,46 @@ fn solve(mut a: Vec<f64>, mut b: Vec<f64>, m: usize) -> Option<Vec<f64>> {
     x.iter().all(|v| v.is_finite()).then_some(x)
 }
 
-fn weighted_ls(xs: &[f64], y: &[f64], w: &[f64], m: usize) -> Option<Vec<f64>> {
-    let mut a = vec![0.0; m * m];
-    let mut b = vec![0.0; m];
-    for (i, (&yi, &wi)) in y.iter().zip(w).enumerate() {
-        let x = &xs[i * m..(i + 1) * m];
+/// Upper triangle of `Σ c_i x_i x_iᵀ` and `Σ c_i x_i y_i` added into `a`, `b`
+/// over the rows `i` of `xs` (row-major, `m` columns) with `c_i ≠ 0`.
+fn accumulate(
+    xs: &[f64],
+    y: &[f64],
+    c: impl Fn(usize) -> f64,
+    m: usize,
+    a: &mut [f64],
+    b: &mut [f64],
+) {
+    for (i, (x, &yi)) in xs.chunks_exact(m).zip(y).enumerate() {
+        let ci = c(i);
+        if ci == 0.0 {
+            continue;
+        }
         for p in 0..m {
-            let wx = wi * x[p];
+            let wx = ci * x[p];
             b[p] += wx * yi;
-            for q in p..m {
-                a[p * m + q] += wx * x[q];
+            for (aq, xq) in a[p * m + p..(p + 1) * m].iter_mut().zip(&x[p..]) {
+                *aq += wx * xq;
             }
         }
     }
+}
+
+/// Weighted least squares `(XᵀWX)⁻¹ XᵀWy` from the unweighted normal
+/// equations `gram = XᵀX`, `xty = Xᵀy` (upper triangles): since Huber weights
+/// are 1 for most rows, `XᵀWX = XᵀX − Σ_{w_i<1} (1 − w_i) x_i x_iᵀ` touches
+/// only the down-weighted rows.
+fn weighted_ls(
+    xs: &[f64],
+    y: &[f64],
+    w: &[f64],
+    m: usize,
+    gram: &[f64],
+    xty: &[f64],
+) -> Option<Vec<f64>> {
+    let mut a = gram.to_vec();
+    let mut b = xty.to_vec();
+    accumulate(xs, y, |i| if w[i] < 1.0 { w[i] - 1.0 } else { 0.0 }, m, &mut a, &mut b);
     for p in 0..m {
         for q in 0..p {
             a[p * m + q] = a[q * m + p];
@@ -225,23 +256,26 @@ pub(crate) fn fit_regression(
         usable(r, &mut xs[i * m..(i + 1) * m]);
         y.push(values[[r, target]]);
     }
+    let mut gram = vec![0.0; m * m];
+    let mut xty = vec![0.0; m];
+    accumulate(&xs, &y, |_| 1.0, m, &mut gram, &mut xty);
     let mut w = vec![1.0; y.len()];
-    let mut beta = weighted_ls(&xs, &y, &w, m)?;
+    let mut beta = weighted_ls(&xs, &y, &w, m, &gram, &xty)?;
     let mut scratch = Vec::new();
     let mut iterations = 0;
     let mut resid = vec![0.0; y.len()];
     for it in 1..=50 {
         iterations = it;
-        for i in 0..y.len() {
-            let f: f64 = xs[i * m..(i + 1) * m].iter().zip(&beta).map(|(a, b)| a * b).sum();
-            resid[i] = y[i] - f;
+        for ((ri, x), yi) in resid.iter_mut().zip(xs.chunks_exact(m)).zip(&y) {
+            let f: f64 = x.iter().zip(&beta).map(|(a, b)| a * b).sum();
+            *ri = yi - f;
         }
         let (_, s, _) = floored_scale(&resid, resolution, &mut scratch)?;
         for (wi, r) in w.iter_mut().zip(&resid) {
             let u = r.abs() / s;
             *wi = if u <= k { 1.0 } else { k / u };
         }
-        let next = weighted_ls(&xs, &y, &w, m)?;
+        let next = weighted_ls(&xs, &y, &w, m, &gram, &xty)?;
         let big = beta.iter().fold(1.0f64, |a, b| a.max(b.abs()));
         let step = next.iter().zip(&beta).fold(0.0f64, |a, (p, q)| a.max((p - q).abs()));
         beta = next;

@@ -3,7 +3,8 @@
 use ndarray::ArrayView1;
 
 use crate::autocorr::{Ar1Estimator, ar1_coefficient_pooled, long_run_variance_factor};
-use crate::robust::{MAD_NORMAL, QuantileType, median_mad_with_scratch, qn, quantiles};
+use crate::robust::select::select;
+use crate::robust::{MAD_NORMAL, QuantileType, median_mad_with_scratch, qn, quantile_sorted};
 
 /// Probabilities of [`SensorBaseline::quantiles`]: 1, 5, 50, 95, 99 %.
 pub const QUANTILE_PROBS: [f64; 5] = [0.01, 0.05, 0.5, 0.95, 0.99];
@@ -127,6 +128,44 @@ pub(crate) fn pooled_phi(x: &[f64], segments: &[(usize, usize)]) -> Option<f64> 
     ar1_coefficient_pooled(&segs, Ar1Estimator::BiasCorrected).ok().filter(|p| p.is_finite())
 }
 
+/// Puts the order statistics `ks` (ascending, distinct, absolute indices,
+/// `v` starting at index `off`) at their sorted positions: select the middle
+/// one, then recurse into the two sides (the `select_nth_unstable` contract
+/// keeps each side's elements on its side).
+fn select_many(v: &mut [f64], ks: &[usize], off: usize) {
+    if ks.is_empty() || v.is_empty() {
+        return;
+    }
+    let mid = ks.len() / 2;
+    let k = ks[mid] - off;
+    select(v, k);
+    let (left, right) = v.split_at_mut(k);
+    select_many(left, &ks[..mid], off);
+    select_many(&mut right[1..], &ks[mid + 1..], off + k + 1);
+}
+
+/// Type-7 quantiles (Hyndman & Fan 1996) of `v` (finite values only),
+/// reordering `v`. Only the order statistics the interpolation reads are
+/// placed, by recursive selection (no sort); the values are those of
+/// [`quantiles`](crate::robust::quantiles) on the same data, bit for bit.
+/// `None` for an empty `v`.
+pub(crate) fn type7_quantiles<const N: usize>(v: &mut [f64], probs: [f64; N]) -> Option<[f64; N]> {
+    let n = v.len();
+    if n == 0 {
+        return None;
+    }
+    // 0-based rank floor((n-1)p) and its neighbours (rounding margin on both sides)
+    let mut ks: Vec<usize> = Vec::with_capacity(4 * N);
+    for p in probs {
+        let j = ((n - 1) as f64 * p).floor().max(0.0) as usize;
+        ks.extend(j.saturating_sub(1)..=(j + 2).min(n - 1));
+    }
+    ks.sort_unstable();
+    ks.dedup();
+    select_many(v, &ks, 0);
+    Some(probs.map(|p| quantile_sorted(v, p, QuantileType::Type7)))
+}
+
 pub(crate) fn fit_sensor_regime(
     col: ArrayView1<'_, f64>,
     labels: &[Option<usize>],
@@ -136,30 +175,42 @@ pub(crate) fn fit_sensor_regime(
     min_rows: usize,
 ) -> Option<SensorBaseline> {
     let n = col.len();
-    let inside = |r: usize| labels[r] == Some(regime) && col[r].is_finite();
-    let x: Vec<f64> = (0..n).filter(|&r| inside(r)).map(|r| col[r]).collect();
-    if x.len() < min_rows {
+    let in_regime = |r: usize, v: f64| labels[r] == Some(regime) && v.is_finite();
+    let n_good = col.iter().enumerate().filter(|&(r, &v)| in_regime(r, v)).count();
+    if n_good < min_rows {
         return None;
     }
-    let mut scratch = Vec::with_capacity(x.len());
+    // one contiguous copy of the (strided) column, only for a regime that is fitted
+    let owned;
+    let colv: &[f64] = match col.as_slice() {
+        Some(s) => s,
+        None => {
+            owned = col.to_vec();
+            &owned
+        }
+    };
+    let inside = |r: usize| in_regime(r, colv[r]);
+    let mut x: Vec<f64> = Vec::with_capacity(n_good);
+    x.extend(colv.iter().enumerate().filter(|&(r, &v)| in_regime(r, v)).map(|(_, &v)| v));
+    let mut scratch = Vec::with_capacity(n_good);
     let (location, scale, scale_method) = floored_scale(&x, resolution, &mut scratch)?;
-    let q = quantiles(&x, &QUANTILE_PROBS, QuantileType::Type7)?;
-    let colv: Vec<f64> = col.to_vec();
+    let q = type7_quantiles(&mut x, QUANTILE_PROBS)?;
     let segments = runs(n, inside);
-    let diffs: Vec<f64> =
-        segments.iter().flat_map(|&(s, e)| colv[s..e].windows(2).map(|w| w[1] - w[0])).collect();
+    scratch.clear();
+    scratch.extend(segments.iter().flat_map(|&(s, e)| colv[s..e].windows(2).map(|w| w[1] - w[0])));
+    let diffs = std::mem::take(&mut scratch);
     let rate_scale = if diffs.is_empty() {
         None
     } else {
         floored_scale(&diffs, resolution, &mut scratch).map(|(_, s, _)| s)
     };
-    let phi = pooled_phi(&colv, &segments);
+    let phi = pooled_phi(colv, &segments);
     Some(SensorBaseline {
-        n_good: x.len(),
+        n_good,
         location,
         scale,
         scale_method,
-        quantiles: [q[0], q[1], q[2], q[3], q[4]],
+        quantiles: q,
         resolution,
         sampling_interval_ms,
         rate_scale,
@@ -211,6 +262,30 @@ mod tests {
         assert_eq!(b.scale_method, ScaleMethod::Floor);
         assert_relative_eq!(b.scale, 0.5 / 12f64.sqrt(), max_relative = 1e-12);
         assert_eq!(b.rate_scale, Some(0.5 / 12f64.sqrt()));
+    }
+
+    #[test]
+    fn selected_quantiles_equal_sorted_ones_bit_for_bit() {
+        // against crate::robust::quantiles (sort + type 7, itself checked against numpy)
+        let mut state = 7u64;
+        for n in [1usize, 2, 3, 5, 10, 99, 100, 101, 1000, 4321] {
+            let x: Vec<f64> = (0..n)
+                .map(|_| {
+                    state =
+                        state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+                    ((state >> 33) % 97) as f64 * 0.25 // many ties
+                })
+                .collect();
+            let want = crate::robust::quantiles(&x, &QUANTILE_PROBS, QuantileType::Type7).unwrap();
+            let mut v = x.clone();
+            let got = type7_quantiles(&mut v, QUANTILE_PROBS).unwrap();
+            assert_eq!(got.to_vec(), want, "n = {n}");
+            let mut v = x.clone();
+            let two = type7_quantiles(&mut v, [0.001, 0.999]).unwrap();
+            let want = crate::robust::quantiles(&x, &[0.001, 0.999], QuantileType::Type7).unwrap();
+            assert_eq!(two.to_vec(), want, "n = {n}");
+        }
+        assert!(type7_quantiles(&mut [], [0.5]).is_none());
     }
 
     #[test]

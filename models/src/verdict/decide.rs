@@ -14,17 +14,21 @@
 //! 2. signatures → sensor_fault: frozen → stuck, silent → dropout,
 //!             outside → out_of_range, spikes → spikes; texture up → noise.
 //! 3. occupancy  → process_change/regime_change.
-//! 4. level and residual episodes are grouped when their spans overlap
+//! 4. context-level episodes and condition episodes (residual, or level
+//!    without a regression) are grouped apart, each when their spans overlap
 //!    (or their alarms are within `group_blocks`); per group:
 //!    a. peers   if at least half of the group's sensors moved the same way
 //!               at ≥ `peer_share` of ≥ 2 peers → process_change/common_mode
-//!    b. context a context sensor's level moved:
-//!               and a condition sensor's level moved too, or several
-//!               context sensors moved            → process_change/level_shift
+//!    b. context a context sensor's level moved (by at least `min_context`):
+//!               and a condition sensor's own level moved by `min_level`
+//!               over the same steps, or several context sensors moved
+//!                                                → process_change/level_shift
 //!               alone, with the condition levels unchanged (only the
 //!               predictions moved)               → sensor_fault on that context sensor
 //!    c. else    two or more condition sensors    → equipment_fault
 //!               exactly one sensor               → sensor_fault on it
+//!    a condition group made only of residual episodes that overlap a
+//!    context sensor fault is explained by it (a bad input) and dropped;
 //!    mode by shape: over the episode, the mean |u| of the first half below
 //!    half that of the second half is a trend (drift / degradation),
 //!    otherwise a step (bias / step_change).
@@ -167,6 +171,7 @@ pub fn decide(
     let big = |e: &Episode| {
         let size = sustained(blocks, cal, e, last);
         match e.channel {
+            Channel::Level if e.sensor.is_some_and(is_ctx) => size >= p.min_context,
             Channel::Level => size >= p.min_level,
             Channel::Resid => size >= p.min_resid,
             Channel::Texture => size >= p.min_texture,
@@ -230,15 +235,43 @@ pub fn decide(
             names,
         ));
     }
-    // group level and residual episodes
-    let mut change: Vec<&Episode> = episodes
+    // Context moves and condition changes are grouped apart (overlapping
+    // spans, or alarms within `group_blocks`), then related: a context
+    // sensor that moved alone (a context sensor fault) explains the
+    // condition residuals that overlap it.
+    let change: Vec<&Episode> = episodes
         .iter()
         .copied()
         .filter(|e| matches!(e.channel, Channel::Level | Channel::Resid) && !absorbed(e))
         .collect();
-    change.sort_by_key(|e| (e.onset_block, e.detected_block));
+    let on_ctx = |e: &Episode| e.channel == Channel::Level && e.sensor.is_some_and(is_ctx);
+    let ctx_groups = group(change.iter().copied().filter(|e| on_ctx(e)).collect(), p, last);
+    let cond_groups = group(change.iter().copied().filter(|e| !on_ctx(e)).collect(), p, last);
+    let mut faulty_ctx: Vec<(usize, usize)> = Vec::new();
+    for g in ctx_groups {
+        let v = decide_group(baseline, cal, blocks, &g, names, &mut peers, p, last);
+        if v.class == VerdictClass::SensorFault {
+            faulty_ctx.extend(g.iter().map(|e| e.span(last)));
+        }
+        out.push(v);
+    }
+    for g in cond_groups {
+        let explained = g.iter().all(|e| {
+            e.channel == Channel::Resid && faulty_ctx.iter().any(|&f| overlaps(e.span(last), f, 0))
+        });
+        if !explained {
+            out.push(decide_group(baseline, cal, blocks, &g, names, &mut peers, p, last));
+        }
+    }
+    out.sort_by_key(|v| (v.detected_block, v.sensor));
+    out
+}
+
+/// Groups episodes whose spans overlap or whose alarms are within `group_blocks`.
+fn group<'a>(mut eps: Vec<&'a Episode>, p: &VerdictParams, last: usize) -> Vec<Vec<&'a Episode>> {
+    eps.sort_by_key(|e| (e.onset_block, e.detected_block));
     let mut groups: Vec<Vec<&Episode>> = Vec::new();
-    for e in change {
+    for e in eps {
         let span = e.span(last);
         match groups.last_mut() {
             Some(g)
@@ -252,11 +285,7 @@ pub fn decide(
             _ => groups.push(vec![e]),
         }
     }
-    for g in groups {
-        out.push(decide_group(baseline, cal, blocks, &g, names, &mut peers, p, last));
-    }
-    out.sort_by_key(|v| (v.detected_block, v.sensor));
-    out
+    groups
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -339,9 +368,52 @@ fn decide_group(
     } else if n_ctx > 0 {
         let c1 = first(&ctx_lvl);
         let k1 = first(&cond_lvl);
+        // did the condition sensors' own levels follow the context move?
+        let followed: Vec<usize> = c1
+            .map(|c| {
+                let (a, b) = c.span(last);
+                (0..baseline.sensors.len())
+                    .filter(|&s| !is_ctx(s))
+                    .filter(|&s| {
+                        let Some(cc) = cal.sensors[s].level else { return false };
+                        let mut v: Vec<f64> = (a..=b.min(last))
+                            .map(|k| blocks.level[[k, s]] - cc.center)
+                            .filter(|x| x.is_finite())
+                            .collect();
+                        crate::robust::median_in_place(&mut v).is_some_and(|m| m.abs() >= p.min_level)
+                    })
+                    .collect()
+            })
+            .unwrap_or_default();
         if let (Some(c), Some(k)) = (c1, k1) {
             let det = if c.detected_block >= k.detected_block { c } else { k };
             verdict_from(VerdictClass::ProcessChange, VerdictMode::LevelShift, None, g, det, 0.8, names)
+        } else if let (Some(c), false) = (c1, followed.is_empty()) {
+            let mut v = verdict_from(
+                VerdictClass::ProcessChange,
+                VerdictMode::LevelShift,
+                None,
+                g,
+                c,
+                0.8,
+                names,
+            );
+            v.evidence.push(EvidenceItem {
+                test: "condition_followed".to_owned(),
+                statistic: followed.len() as f64,
+                threshold: 1.0,
+                p_value: None,
+                detail: format!(
+                    "condition sensors whose own level moved by at least {} robust sigma with the \
+                     context: {}",
+                    p.min_level,
+                    followed.iter().map(|&s| names[s].as_str()).collect::<Vec<_>>().join(", ")
+                ),
+            });
+            v.sensors.extend(followed);
+            v.sensors.sort_unstable();
+            v.sensors.dedup();
+            v
         } else if n_ctx >= 2 {
             let mut ctx_eps: Vec<&Episode> = g.iter().filter(|e| ctx_lvl(e)).copied().collect();
             ctx_eps.sort_by_key(|e| e.detected_block);

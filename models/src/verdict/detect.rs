@@ -5,7 +5,7 @@
 //!
 //! | channel     | statistic | alarm | onset | end |
 //! |-------------|-----------|-------|-------|-----|
-//! | `level`, `resid` | two-sided tabular CUSUM (Page 1954) on the calibrated `u`, reference `k`, interval `h` from the in-control ARL (Siegmund 1985), at least 1.25 × the held-out maximum | `C > h` | block after the chart's last in-control block | first of `close_blocks` consecutive blocks with `|u| < 1` |
+//! | `level` (context sensors, and condition sensors without a regression), `resid` (condition sensors with one) | two-sided tabular CUSUM (Page 1954) on the calibrated `u`, reference `k`, interval `h` from the in-control ARL (Siegmund 1985), at least 1.25 × the held-out maximum | `C > h` | block after the chart's last in-control block | first of `close_blocks` consecutive blocks with `|u| < 1` |
 //! | `texture`   | upper CUSUM on `u` of the log texture ratio | `C+ > h` | as above | as above |
 //! | `spikes`    | isolated outliers in the trailing `spike_window` blocks vs the calibrated rate (Poisson tail) | `≥ 3` and tail `< 1/ARL0` | first block of the window with a spike | `spike_window` blocks without a spike |
 //! | `outside`   | rows outside the instrument range | `≥ max(3, 10 %)` of a block's rows | first such block | `close_blocks` clean blocks |
@@ -116,8 +116,9 @@ pub fn chart_count(baseline: &AssetBaseline, cal: &Calibration) -> usize {
     let n: usize = (0..baseline.sensors.len())
         .map(|s| {
             let c = &cal.sensors[s];
-            usize::from(c.level.is_some())
-                + usize::from(c.resid.is_some() && baseline.regressions[s].is_some())
+            let resid = c.resid.is_some() && baseline.regressions[s].is_some();
+            usize::from(c.level.is_some() && !resid)
+                + usize::from(resid)
                 + usize::from(c.texture.is_some())
         })
         .sum();
@@ -294,7 +295,11 @@ pub fn detect(
     let mut charts_v: Vec<(usize, Channel, Chart)> = Vec::new();
     for s in 0..ns {
         let c = &cal.sensors[s];
-        if let Some(cc) = c.level
+        // a condition sensor with a context regression is judged on its
+        // residual: its own level follows the operating point and the weather
+        let judged_on_residual = baseline.regressions[s].is_some() && c.resid.is_some();
+        if !judged_on_residual
+            && let Some(cc) = c.level
             && let Some(ch) = mk(cc, false)
         {
             charts_v.push((s, Channel::Level, ch));

@@ -49,7 +49,8 @@ use ndarray::ArrayView2;
 /// | `group_blocks` | 48 | blocks | alarms this close belong to one change |
 /// | `peer_share` | 0.5 | share | peers that must move the same way for a common-mode change |
 /// | `peer_u` | 1 | robust σ | how far a peer's block level (median over the episode's steps) must move to count |
-/// | `min_level` | 1 | robust σ | sustained size a level episode needs to take part |
+/// | `min_level` | 1 | robust σ | sustained size a level episode of a condition sensor needs to take part, and the move that counts as "followed" |
+/// | `min_context` | 2 | robust σ | sustained size a context sensor's level episode needs: the operating point left its usual envelope (weather fronts and reservoir wander stay below it) |
 /// | `min_resid` | 0.75 | residual σ | sustained size a residual episode needs |
 /// | `min_texture` | ln 1.5 | log ratio | sustained rise of the texture ratio a noise verdict needs |
 /// | `occupancy_window` | 72 | blocks | window of the regime-occupancy test |
@@ -82,8 +83,10 @@ pub struct VerdictParams {
     pub peer_share: f64,
     /// Peer movement threshold, robust σ.
     pub peer_u: f64,
-    /// Sustained size of a level episode, robust σ.
+    /// Sustained size of a condition sensor's level episode, robust σ.
     pub min_level: f64,
+    /// Sustained size of a context sensor's level episode, robust σ.
+    pub min_context: f64,
     /// Sustained size of a residual episode, residual σ.
     pub min_resid: f64,
     /// Sustained rise of the log texture ratio.
@@ -111,6 +114,7 @@ impl Default for VerdictParams {
             peer_share: 0.5,
             peer_u: 1.0,
             min_level: 1.0,
+            min_context: 2.0,
             min_resid: 0.75,
             min_texture: std::f64::consts::LN_2 * 0.585,
             occupancy_window: 72,
@@ -295,6 +299,8 @@ pub struct AssetEvaluation {
     /// Block level minus its held-out center, robust σ of the baseline,
     /// `blocks × sensors` (for peers).
     pub level_u: ndarray::Array2<f64>,
+    /// Block residual minus its held-out center, residual σ (for peers).
+    pub resid_u: ndarray::Array2<f64>,
 }
 
 /// Scores, summarises and runs detection on one asset's aligned rows
@@ -317,12 +323,13 @@ pub fn evaluate_asset(
     let st = streaks(values, &scores.regime, p.min_streak_rows);
     let episodes = detect(baseline, cal, &blocks, &st, p);
     let mut level_u = ndarray::Array2::from_elem(blocks.level.dim(), f64::NAN);
+    let mut resid_u = ndarray::Array2::from_elem(blocks.level.dim(), f64::NAN);
     for b in 0..blocks.len() {
         for s in 0..values.ncols() {
-            level_u[[b, s]] = cal.sensors[s]
-                .level
-                .map_or(f64::NAN, |c| blocks.level[[b, s]] - c.center);
+            let c = &cal.sensors[s];
+            level_u[[b, s]] = c.level.map_or(f64::NAN, |c| blocks.level[[b, s]] - c.center);
+            resid_u[[b, s]] = c.resid.map_or(f64::NAN, |c| blocks.resid[[b, s]] - c.center);
         }
     }
-    Ok(AssetEvaluation { blocks, episodes, level_u })
+    Ok(AssetEvaluation { blocks, episodes, level_u, resid_u })
 }

@@ -8,7 +8,9 @@
 //!        align on the baseline grid ─ evaluate_asset (models::verdict):
 //!        scores → hourly blocks → causal episodes per channel
 //!  fleet stage (all assets' block levels in memory, small):
-//!        peers = same site and group (same site when fewer than 2) → PeerSupport
+//!        peers = same site and group (same site when fewer than 2) → PeerSupport:
+//!        the same sensor id, the same channel (level for a level episode,
+//!        residual for a residual one), moved the same way over the episode's steps
 //!        decide → verdicts → keep those detected in [from, to)
 //!        Benjamini–Hochberg across the fleet at q → score → rank
 //! ```
@@ -462,7 +464,11 @@ fn fleet_stage(s: &ScanSettings, done: &[Evaluated], origin: i64) -> (Vec<Suspic
             let mut sup = PeerSupport::default();
             for &j in &peers[i] {
                 let Some(k) = names[j].iter().position(|n| n == id) else { continue };
-                let pu = &done[j].eval.level_u;
+                let (pu, limit) = if ep.channel == Channel::Resid {
+                    (&done[j].eval.resid_u, p.min_resid)
+                } else {
+                    (&done[j].eval.level_u, p.peer_u)
+                };
                 let off_j = ((done[j].eval.blocks.origin_ms - origin) / p.block_ms) as isize;
                 let u: Vec<f64> = (lo..=hi)
                     .filter_map(|b| {
@@ -470,7 +476,7 @@ fn fleet_stage(s: &ScanSettings, done: &[Evaluated], origin: i64) -> (Vec<Suspic
                         (r >= 0 && (r as usize) < pu.nrows()).then(|| pu[[r as usize, k]])
                     })
                     .collect();
-                match peer_moved(&u, ep.side, p.peer_u) {
+                match peer_moved(&u, ep.side, limit) {
                     Some(true) => {
                         sup.peers += 1;
                         sup.moved.push(done[j].stored.asset.clone());
