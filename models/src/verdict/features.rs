@@ -6,7 +6,7 @@
 //! | field     | per block and sensor | units |
 //! |-----------|----------------------|-------|
 //! | `level`   | median robust z of the rows with a value (each row against the baseline of its own regime) | robust σ of that baseline |
-//! | `resid`   | median regression residual z of the running rows (condition sensors with a regression) | residual σ |
+//! | `resid`   | median regression residual z of the running rows that have been in their regime for [`SETTLE_MS`] (condition sensors with a regression) | residual σ |
 //! | `texture` | ln(trimmed mean of \|second differences\| in the block / the baseline's `rate_scale`): measurement noise, insensitive to a changing slope | — |
 //! | `spikes`  | isolated outliers: rows that jump away from *both* neighbours by more than `spike_factor · rate_scale`, in the same direction | count |
 //! | `outside` | rows outside the instrument range | count |
@@ -25,6 +25,11 @@ use ndarray::{Array2, ArrayView2};
 
 use crate::baseline::{AssetBaseline, RowScores, STOPPED};
 use crate::robust::median_in_place;
+
+/// How long a machine must have stayed in its regime before its residuals
+/// are judged: 2 hours (common practice, no source; covers first-order
+/// thermal lags of up to about 40 minutes to within 5 %).
+pub const SETTLE_MS: i64 = 2 * 3_600_000;
 
 /// Block summaries of one asset; see the [module docs](self).
 #[derive(Debug, Clone, PartialEq)]
@@ -131,6 +136,17 @@ pub fn block_features(
         spe_ratio: vec![f64::NAN; nb],
     };
     let need = ((min_fill * rpb as f64).ceil() as usize).max(3).min(rpb.max(3));
+    // rows since the regime last changed: residuals are judged only once the
+    // machine has settled in its regime (thermal lags after a start)
+    let settle_rows = (SETTLE_MS / step.max(1)) as usize;
+    let mut settled = vec![0usize; n];
+    for r in 0..n {
+        settled[r] = match (r.checked_sub(1).and_then(|q| scores.regime[q]), scores.regime[r]) {
+            (Some(a), Some(b)) if a == b => settled[r - 1] + 1,
+            (_, Some(_)) => 1,
+            _ => 0,
+        };
+    }
     let mut buf = Vec::with_capacity(rpb);
     let pca_limits = baseline.pca.as_ref().map(|m| (m.limits.t2_phase2, m.limits.spe_jm));
     for bl in 0..nb {
@@ -161,7 +177,10 @@ pub fn block_features(
             buf.extend((r0..r1).filter(|&r| ok(r)).map(|r| scores.z[[r, s]]).filter(|z| z.is_finite()));
             out.level[[bl, s]] = block_median(&mut buf, need);
             buf.extend(
-                (r0..r1).filter(|&r| ok(r)).map(|r| scores.residual_z[[r, s]]).filter(|z| z.is_finite()),
+                (r0..r1)
+                    .filter(|&r| ok(r) && settled[r] >= settle_rows)
+                    .map(|r| scores.residual_z[[r, s]])
+                    .filter(|z| z.is_finite()),
             );
             out.resid[[bl, s]] = block_median(&mut buf, need);
             // texture and spikes need the row's regime baseline
