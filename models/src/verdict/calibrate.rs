@@ -74,17 +74,25 @@ impl ChannelCal {
     /// exponential upper tail, `P(max > x) ≈ T / ARL(x)` with `ARL(x) ∝
     /// exp(θ x)`, θ = 2k for independent values (Siegmund 1985) and
     /// `θ = 2k / lrf(φ)` under AR(1) dependence (lrf the long-run variance
-    /// factor). Anchoring the median of the held-out maximum at the observed
-    /// `max_cusum` over the held-out blocks `n` gives
+    /// factor). When the held-out maximum is far above the independent-data
+    /// expectation `M0 = ln(2 k² n) / 2k`, the tail is heavier still and θ is
+    /// scaled by `M0 / max_cusum`. Anchoring the median of the held-out
+    /// maximum at the observed `max_cusum` over the held-out blocks `n` gives
     ///
     /// ```text
+    /// θ = min(2k / lrf(φ), 2k · M0 / max_cusum)
     /// p = min(1, (blocks / n) · 0.5 · exp(-θ (peak - max_cusum)))
     /// ```
     pub fn p_value(&self, peak: f64, blocks: usize, k: f64) -> f64 {
         if self.n == 0 {
             return 1.0;
         }
-        let theta = 2.0 * k / long_run_variance_factor(self.phi);
+        // a chart whose held-out maximum is far above what independent values
+        // give has a heavier tail than the AR(1) factor says: scale θ down
+        let k2 = (2.0 * k).max(1e-6);
+        let iid_max = ((self.n as f64 * k * k * 2.0).max(std::f64::consts::E).ln() / k2).max(1.0);
+        let theta = (k2 / long_run_variance_factor(self.phi))
+            .min(k2 * iid_max / self.max_cusum.max(iid_max));
         let p = blocks as f64 / self.n as f64 * 0.5 * (-theta * (peak - self.max_cusum)).exp();
         p.min(1.0)
     }
