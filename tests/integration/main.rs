@@ -7,3 +7,4 @@ mod golden_trend_twosample;
 mod io_files;
 mod io_reader;
 mod jobs_fit;
+mod verdict;
