@@ -582,8 +582,6 @@ fn episodes_detected_by_a_time_do_not_depend_on_later_data() {
 }
 
 #[test]
-#[ignore = "the frozen-run alarm is dated at the row where the run would reach its length \
-            counting stopped rows, before the running rows that complete it: look-ahead"]
 fn frozen_run_across_a_stop_is_not_detected_before_it_is_long_enough() {
     // A frozen run counts running rows only (stopped rows neither extend nor
     // break it). Freeze the vibration at 01:40 on day 3 of the scan: 19

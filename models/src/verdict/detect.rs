@@ -24,13 +24,13 @@
 //! tail ([`ChannelCal::p_value`](super::ChannelCal::p_value)); the multipliers
 //! (3 ×, 1.5 ×, 10 %, 0.15) are common practice, no source.
 
+use super::VerdictParams;
 use super::calibrate::{Calibration, ChannelCal, day_bin, profile_distance};
 use super::features::{Blocks, Streak, StreakKind};
-use super::VerdictParams;
+use crate::ParamGuard;
 use crate::baseline::{AssetBaseline, SensorRole};
 use crate::changepoint::{Cusum, Side};
 use crate::changepoint::{design_threshold, two_sided_arl};
-use crate::ParamGuard;
 
 /// What an episode was detected on.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
@@ -159,6 +159,7 @@ fn poisson_sf(c: f64, lambda: f64) -> f64 {
 ///
 /// `streaks` come from [`streaks`](super::features::streaks) over the same
 /// rows (row 0 = start of block 0).
+#[expect(clippy::needless_range_loop, reason = "blocks and sensors index several arrays at once")]
 pub fn detect(
     baseline: &AssetBaseline,
     cal: &Calibration,
@@ -177,7 +178,8 @@ pub fn detect(
 
     // streak episodes and, per block, which sensors are known-bad
     let mut known_bad = vec![vec![false; ns]; nb];
-    let mut streak_eps: Vec<(usize, StreakKind, usize, usize, usize)> = Vec::new(); // sensor, kind, start, end, need
+    // (sensor, kind, start, end, need, row at which the first run reached need)
+    let mut streak_eps: Vec<(usize, StreakKind, usize, usize, usize, usize)> = Vec::new();
     for st in streaks {
         let c = &cal.sensors[st.sensor];
         let held = match st.kind {
@@ -185,10 +187,7 @@ pub fn detect(
             StreakKind::Frozen => c.max_frozen_rows,
         };
         let need = p.min_streak_rows.max(3 * held);
-        if st.len < need {
-            continue;
-        }
-        // merge with the previous streak of the same kind when close
+        // merge with the previous qualifying run of the same kind when close
         if let Some(last) = streak_eps.last_mut()
             && last.0 == st.sensor
             && last.1 == st.kind
@@ -197,14 +196,10 @@ pub fn detect(
             last.3 = st.end;
             continue;
         }
-        streak_eps.push((st.sensor, st.kind, st.start, st.end, need));
+        let Some(cross_row) = st.row_reaching(need) else { continue };
+        streak_eps.push((st.sensor, st.kind, st.start, st.end, need, cross_row));
     }
-    for &(s, kind, start, end, need) in &streak_eps {
-        let cross_row = match kind {
-            StreakKind::Silent => start + need - 1,
-            // frozen runs skip stopped rows; the alarm is at the run's end at the latest
-            StreakKind::Frozen => (start + need - 1).min(end.saturating_sub(1)),
-        };
+    for &(s, kind, start, end, need, cross_row) in &streak_eps {
         let det = (cross_row / rpb).min(nb.saturating_sub(1));
         let end_block = end.div_ceil(rpb).saturating_sub(1);
         for kb in known_bad.iter_mut().take((end_block + 1).min(nb)).skip(det) {

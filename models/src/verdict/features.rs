@@ -174,7 +174,9 @@ pub fn block_features(
                 let v = values[[r, s]];
                 v.is_finite() && !is_outside(baseline, s, v)
             };
-            buf.extend((r0..r1).filter(|&r| ok(r)).map(|r| scores.z[[r, s]]).filter(|z| z.is_finite()));
+            buf.extend(
+                (r0..r1).filter(|&r| ok(r)).map(|r| scores.z[[r, s]]).filter(|z| z.is_finite()),
+            );
             out.level[[bl, s]] = block_median(&mut buf, need);
             buf.extend(
                 (r0..r1)
@@ -210,9 +212,9 @@ pub fn block_features(
                 }
             }
             if diffs.len() + 1 >= need {
-                let reg = (r0..r1).filter_map(|r| scores.regime[r]).max_by_key(|&g| {
-                    (r0..r1).filter(|&r| scores.regime[r] == Some(g)).count()
-                });
+                let reg = (r0..r1)
+                    .filter_map(|r| scores.regime[r])
+                    .max_by_key(|&g| (r0..r1).filter(|&r| scores.regime[r] == Some(g)).count());
                 let rate = reg.and_then(|g| baseline.baseline_for(s, g)).and_then(|b| b.rate_scale);
                 if let Some(rate) = rate
                     && rate > 0.0
@@ -271,7 +273,7 @@ pub enum StreakKind {
 }
 
 /// A maximal run of rows of one kind on one sensor.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Streak {
     /// Sensor position.
     pub sensor: usize,
@@ -283,6 +285,27 @@ pub struct Streak {
     pub len: usize,
     /// Row at which the run ended (exclusive; `n` when still open at the end).
     pub end: usize,
+    /// For `Frozen`: the rows counted in the run, in order (stopped and
+    /// missing rows in between are not counted); empty for `Silent`, whose
+    /// rows are `start..end`.
+    pub counted: Vec<usize>,
+}
+
+impl Streak {
+    /// The row at which the run reached `need` counted rows, if it did.
+    pub fn row_reaching(&self, need: usize) -> Option<usize> {
+        if need == 0 || need > self.len {
+            return None;
+        }
+        match self.kind {
+            StreakKind::Silent => Some(self.start + need - 1),
+            StreakKind::Frozen => self.counted.get(need - 1).copied(),
+        }
+    }
+}
+
+fn frozen(sensor: usize, counted: Vec<usize>, end: usize) -> Streak {
+    Streak { sensor, kind: StreakKind::Frozen, start: counted[0], len: counted.len(), end, counted }
 }
 
 /// Finds every silent and frozen run of at least `min_len` rows.
@@ -292,12 +315,15 @@ pub struct Streak {
 /// not faulty). *Frozen*: consecutive readings exactly equal to the previous
 /// reading on running rows; stopped rows and missing rows neither extend nor
 /// break the run, a different value ends it.
-pub fn streaks(values: ArrayView2<'_, f64>, regime: &[Option<usize>], min_len: usize) -> Vec<Streak> {
+pub fn streaks(
+    values: ArrayView2<'_, f64>,
+    regime: &[Option<usize>],
+    min_len: usize,
+) -> Vec<Streak> {
     let (n, p) = values.dim();
     let mut out = Vec::new();
-    let others: Vec<usize> = (0..n)
-        .map(|r| values.row(r).iter().filter(|v| v.is_finite()).count())
-        .collect();
+    let others: Vec<usize> =
+        (0..n).map(|r| values.row(r).iter().filter(|v| v.is_finite()).count()).collect();
     for s in 0..p {
         // silent
         let mut start = None;
@@ -307,7 +333,14 @@ pub fn streaks(values: ArrayView2<'_, f64>, regime: &[Option<usize>], min_len: u
                 (true, None) => start = Some(r),
                 (false, Some(st)) => {
                     if r - st >= min_len {
-                        out.push(Streak { sensor: s, kind: StreakKind::Silent, start: st, len: r - st, end: r });
+                        out.push(Streak {
+                            sensor: s,
+                            kind: StreakKind::Silent,
+                            start: st,
+                            len: r - st,
+                            end: r,
+                            counted: Vec::new(),
+                        });
                     }
                     start = None;
                 }
@@ -316,28 +349,24 @@ pub fn streaks(values: ArrayView2<'_, f64>, regime: &[Option<usize>], min_len: u
         }
         // frozen
         let mut prev: Option<f64> = None;
-        let mut run_start = 0usize;
-        let mut run_len = 0usize;
+        let mut counted: Vec<usize> = Vec::new();
         for r in 0..n {
             let v = values[[r, s]];
             if !v.is_finite() || regime[r].is_none_or(|g| g == STOPPED) {
                 continue;
             }
             if prev == Some(v) {
-                if run_len == 0 {
-                    run_start = r;
-                }
-                run_len += 1;
+                counted.push(r);
             } else {
-                if run_len >= min_len {
-                    out.push(Streak { sensor: s, kind: StreakKind::Frozen, start: run_start, len: run_len, end: r });
+                if counted.len() >= min_len {
+                    out.push(frozen(s, std::mem::take(&mut counted), r));
                 }
-                run_len = 0;
+                counted.clear();
             }
             prev = Some(v);
         }
-        if run_len >= min_len {
-            out.push(Streak { sensor: s, kind: StreakKind::Frozen, start: run_start, len: run_len, end: n });
+        if counted.len() >= min_len {
+            out.push(frozen(s, counted, n));
         }
     }
     out

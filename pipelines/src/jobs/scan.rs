@@ -202,11 +202,7 @@ fn summary(v: &Verdict, asset: &str, names: &[String], site: Option<&str>, when:
     let sensor = v.sensor.map_or("", |s| names[s].as_str());
     let list: Vec<&str> = v.sensors.iter().map(|&s| names[s].as_str()).collect();
     let list = list.join(", ");
-    let dir = if v
-        .evidence
-        .first()
-        .is_some_and(|e| e.detail.contains("upward"))
-    {
+    let dir = if v.evidence.first().is_some_and(|e| e.detail.contains("upward")) {
         "high"
     } else {
         "low"
@@ -346,8 +342,8 @@ pub fn run_scan(settings: &ScanSettings) -> Result<ScanReport> {
     let mut batch: Vec<(AssetHistory, StoredBaseline)> = Vec::new();
     let cap = 2 * threads;
     let flush = |batch: &mut Vec<(AssetHistory, StoredBaseline)>,
-                     done: &mut Vec<Evaluated>,
-                     skipped: &mut Vec<(String, String)>| {
+                 done: &mut Vec<Evaluated>,
+                 skipped: &mut Vec<(String, String)>| {
         let res: Vec<(String, std::result::Result<Evaluated, String>)> = pool.install(|| {
             batch
                 .par_drain(..)
@@ -433,7 +429,11 @@ fn peer_sets(done: &[Evaluated]) -> Vec<Vec<usize>> {
                 .unwrap_or_default();
             // an unregistered asset is its own group with no site: no peers
             if sg.len() >= 2 || site.is_none() {
-                return if site.is_none() && e.stored.group == e.stored.asset { Vec::new() } else { sg };
+                return if site.is_none() && e.stored.group == e.stored.asset {
+                    Vec::new()
+                } else {
+                    sg
+                };
             }
             site.and_then(|s| by_site.get(s))
                 .map(|v| v.iter().copied().filter(|&j| j != i).collect())
@@ -493,7 +493,7 @@ fn fleet_stage(s: &ScanSettings, done: &[Evaluated], origin: i64) -> (Vec<Suspic
             decide(&e.stored.baseline, cal, blocks, &e.eval.episodes, &names[i], peer_of, p);
         for v in verdicts {
             let detected_ms = blocks.end_ms(v.detected_block);
-            if detected_ms > s.from_ms && detected_ms <= s.to_ms {
+            if detected_ms >= s.from_ms && detected_ms < s.to_ms {
                 pending.push(Pending { asset: i, v, detected_ms });
             }
         }

@@ -6,7 +6,7 @@ use anyhow::Context;
 use clap::{Args, ValueEnum};
 use std::io::Write;
 use std::path::PathBuf;
-use telltale_pipelines::io::{FileFormat, write_suspicions, write_suspicions_to};
+use telltale_pipelines::io::{FileFormat, write_suspicions_to};
 use telltale_pipelines::jobs::{ScanReport, ScanSettings, run_scan};
 use telltale_pipelines::record::Suspicion;
 use telltale_pipelines::time::parse_time;
@@ -119,8 +119,19 @@ pub(crate) fn write_out(
     format: FileFormat,
 ) -> anyhow::Result<()> {
     match out {
-        Some(path) => write_suspicions(path, items)
-            .with_context(|| format!("writing suspicions to {}", path.display())),
+        Some(path) => {
+            // the explicit format wins over the extension; written to a
+            // temporary file beside the target, then renamed (atomic)
+            let mut buf = Vec::new();
+            write_suspicions_to(&mut buf, format, items, path)?;
+            let tmp = path.with_extension(format!(
+                "{}.tmp",
+                path.extension().and_then(|e| e.to_str()).unwrap_or("out")
+            ));
+            std::fs::write(&tmp, &buf)
+                .and_then(|()| std::fs::rename(&tmp, path))
+                .with_context(|| format!("writing suspicions to {}", path.display()))
+        }
         None => {
             // Write to memory first (the writer checks every number before
             // writing anything), then to stdout in one go.
@@ -161,8 +172,9 @@ pub(crate) fn run(args: &ScanArgs) -> anyhow::Result<()> {
     if args.out.is_none() && format == FileFormat::Parquet {
         tracing::info!("writing Parquet to stdout; redirect it to a file");
     }
-    let report = run_scan(&settings)
-        .with_context(|| format!("scanning {} against {}", args.history.display(), args.store.display()))?;
+    let report = run_scan(&settings).with_context(|| {
+        format!("scanning {} against {}", args.history.display(), args.store.display())
+    })?;
     log_report(&report);
     write_out(&report.suspicions, args.out.as_deref(), format)
 }
