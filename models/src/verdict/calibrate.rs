@@ -160,8 +160,8 @@ fn channel(x: impl Iterator<Item = f64> + Clone, floor: f64, k: f64) -> Option<C
     let mad = MAD_NORMAL * median(&dev).unwrap_or(0.0);
     let spread = if mad > 0.0 { mad } else { qn(&v).unwrap_or(0.0) };
     // heavy tails: the 1 %..99 % range of a normal is 4.65 sigma
-    let tails = quantiles(&v, &[0.01, 0.99], QuantileType::Type7)
-        .map_or(0.0, |q| (q[1] - q[0]) / 4.653);
+    let tails =
+        quantiles(&v, &[0.01, 0.99], QuantileType::Type7).map_or(0.0, |q| (q[1] - q[0]) / 4.653);
     let scale = spread.max(tails).max(floor);
     // lag-1 over consecutive finite pairs (gaps dropped)
     let all: Vec<f64> = x.collect();
@@ -181,12 +181,10 @@ fn channel(x: impl Iterator<Item = f64> + Clone, floor: f64, k: f64) -> Option<C
         }
     }
     let w: usize = phis.iter().map(|(_, n)| n).sum();
-    let phi = if w > 0 {
-        phis.iter().map(|(p, n)| p * *n as f64).sum::<f64>() / w as f64
-    } else {
-        0.0
-    };
-    let mut cal = ChannelCal { center, scale, phi: phi.clamp(0.0, 0.9), n: v.len(), max_cusum: 0.0 };
+    let phi =
+        if w > 0 { phis.iter().map(|(p, n)| p * *n as f64).sum::<f64>() / w as f64 } else { 0.0 };
+    let mut cal =
+        ChannelCal { center, scale, phi: phi.clamp(0.0, 0.9), n: v.len(), max_cusum: 0.0 };
     let (mut up, mut lo, mut worst) = (0.0f64, 0.0f64, 0.0f64);
     for y in all {
         let u = cal.u(y);
@@ -209,7 +207,12 @@ pub(crate) fn day_bin(ms: i64, bins: usize) -> usize {
 
 /// Total-variation distance between an occupancy profile (counts, `bins ×
 /// regimes`) and the reference shares, averaged over the bins that have rows.
-pub(crate) fn profile_distance(counts: &[f64], reference: &[f64], bins: usize, regimes: usize) -> f64 {
+pub(crate) fn profile_distance(
+    counts: &[f64],
+    reference: &[f64],
+    bins: usize,
+    regimes: usize,
+) -> f64 {
     let mut tot = 0.0;
     let mut used = 0.0;
     for b in 0..bins {

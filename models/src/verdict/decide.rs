@@ -29,9 +29,10 @@
 //!               exactly one sensor               → sensor_fault on it
 //!    a condition group made only of residual episodes that overlap a
 //!    context sensor fault is explained by it (a bad input) and dropped;
-//!    mode by shape: over the episode, the mean |u| of the first half below
-//!    half that of the second half is a trend (drift / degradation),
-//!    otherwise a step (bias / step_change).
+//!    mode by shape: a Theil–Sen line (Sen 1968) through the episode's
+//!    block values that rises by at least half their median level, with a
+//!    slope whose 95 % interval excludes 0, is a trend (drift /
+//!    degradation), otherwise a step (bias / step_change).
 //! ```
 //!
 //! `detected` is the alarm that completed the evidence for the verdict: the
@@ -52,29 +53,35 @@ fn overlaps(a: (usize, usize), b: (usize, usize), slack: usize) -> bool {
     a.0 <= b.1 + slack && b.0 <= a.1 + slack
 }
 
-/// Mean |u| over the first and second halves of `[from, to]` (side-adjusted).
-fn halves(blocks: &Blocks, cal: &Calibration, e: &Episode, last: usize) -> (f64, f64) {
-    let Some(s) = e.sensor else { return (f64::NAN, f64::NAN) };
+/// Shape of an episode: Theil–Sen line (Sen 1968) through its side-adjusted
+/// block values `u` over `[onset, end]`. Returns `(rise, level, slope_low)`:
+/// `rise = slope · (steps − 1)`, `level` = median `u`, `slope_low` the lower
+/// 95 % confidence bound of the slope.
+fn shape(blocks: &Blocks, cal: &Calibration, e: &Episode, last: usize) -> Option<(f64, f64, f64)> {
+    let s = e.sensor?;
     let (a, b) = e.span(last);
-    let vals: Vec<f64> = (a..=b)
-        .map(|k| block_u(blocks, cal, s, e.channel, k) * e.side)
-        .filter(|v| v.is_finite())
-        .collect();
-    if vals.len() < 4 {
-        return (f64::NAN, f64::NAN);
+    let (t, y): (Vec<f64>, Vec<f64>) = (a..=b.min(last))
+        .map(|k| (k as f64, block_u(blocks, cal, s, e.channel, k) * e.side))
+        .filter(|(_, v)| v.is_finite())
+        .unzip();
+    if y.len() < 6 {
+        return None;
     }
-    let m = vals.len() / 2;
-    let mean = |x: &[f64]| x.iter().sum::<f64>() / x.len() as f64;
-    (mean(&vals[..m]), mean(&vals[m..]))
+    let fit = crate::trend::theil_sen(&t, &y).ok()?;
+    let mut ys = y.clone();
+    let level = crate::robust::median_in_place(&mut ys)?;
+    let span = t.last()? - t.first()?;
+    Some((fit.slope * span, level, fit.slope_low))
 }
 
+/// A trend (drift, degradation) rather than a step: the fitted line rises by
+/// at least half the episode's median level and its slope's 95 % interval
+/// excludes 0 (common practice, no source).
 fn is_trend(blocks: &Blocks, cal: &Calibration, e: &Episode, last: usize) -> (bool, f64) {
-    let (f, s) = halves(blocks, cal, e, last);
-    if !(f.is_finite() && s.is_finite()) || s <= 0.0 {
-        return (false, f64::NAN);
+    match shape(blocks, cal, e, last) {
+        Some((rise, level, lo)) if level > 0.0 => (rise >= 0.5 * level && lo > 0.0, rise / level),
+        _ => (false, f64::NAN),
     }
-    let r = f / s;
-    (r < 0.5, r)
 }
 
 fn episode_evidence(e: &Episode, names: &[String]) -> EvidenceItem {
@@ -186,9 +193,20 @@ pub fn decide(
                 || (e.p_value <= p.episode_p && big(e))
         })
         .collect();
-    let sig: Vec<&Episode> = episodes.iter().copied().filter(|e| e.channel.is_signature()).collect();
+    let sig: Vec<&Episode> =
+        episodes.iter().copied().filter(|e| e.channel.is_signature()).collect();
     let occ: Vec<&Episode> =
         episodes.iter().copied().filter(|e| e.channel == Channel::Occupancy).collect();
+    // a noisier signal also throws isolated outliers: noise explains spikes
+    let noisy: Vec<&Episode> =
+        episodes.iter().copied().filter(|e| e.channel == Channel::Texture).collect();
+    let sig: Vec<&Episode> = sig
+        .into_iter()
+        .filter(|e| {
+            e.channel != Channel::Spikes
+                || !noisy.iter().any(|n| n.sensor == e.sensor && overlaps(n.span(last), e.span(last), slack))
+        })
+        .collect();
     let absorbed = |e: &Episode| -> bool {
         let span = e.span(last);
         let Some(s) = e.sensor else { return false };
@@ -349,8 +367,12 @@ fn decide_group(
         g.iter().filter(|e| pred(e)).min_by_key(|e| e.detected_block).copied()
     };
     let ctx_lvl = |e: &Episode| e.channel == Channel::Level && e.sensor.is_some_and(is_ctx);
-    let cond_lvl = |e: &Episode| e.channel == Channel::Level && e.sensor.is_some_and(|s| !is_ctx(s));
-    let n_ctx = sensors.iter().filter(|&&s| is_ctx(s) && g.iter().any(|e| e.sensor == Some(s) && ctx_lvl(e))).count();
+    let cond_lvl =
+        |e: &Episode| e.channel == Channel::Level && e.sensor.is_some_and(|s| !is_ctx(s));
+    let n_ctx = sensors
+        .iter()
+        .filter(|&&s| is_ctx(s) && g.iter().any(|e| e.sensor == Some(s) && ctx_lvl(e)))
+        .count();
     let earliest = first(&|_| true).unwrap_or(g[0]);
     let mut v = if shared > 0 && 2 * shared >= sensors.len() {
         let conf = 0.6 + 0.35 * (shared as f64 / sensors.len() as f64);
@@ -380,14 +402,23 @@ fn decide_group(
                             .map(|k| blocks.level[[k, s]] - cc.center)
                             .filter(|x| x.is_finite())
                             .collect();
-                        crate::robust::median_in_place(&mut v).is_some_and(|m| m.abs() >= p.min_level)
+                        crate::robust::median_in_place(&mut v)
+                            .is_some_and(|m| m.abs() >= p.min_level)
                     })
                     .collect()
             })
             .unwrap_or_default();
         if let (Some(c), Some(k)) = (c1, k1) {
             let det = if c.detected_block >= k.detected_block { c } else { k };
-            verdict_from(VerdictClass::ProcessChange, VerdictMode::LevelShift, None, g, det, 0.8, names)
+            verdict_from(
+                VerdictClass::ProcessChange,
+                VerdictMode::LevelShift,
+                None,
+                g,
+                det,
+                0.8,
+                names,
+            )
         } else if let (Some(c), false) = (c1, followed.is_empty()) {
             let mut v = verdict_from(
                 VerdictClass::ProcessChange,
@@ -422,13 +453,20 @@ fn decide_group(
                 .find(|e| e.sensor != ctx_eps[0].sensor)
                 .copied()
                 .unwrap_or(ctx_eps[0]);
-            verdict_from(VerdictClass::ProcessChange, VerdictMode::LevelShift, None, g, det, 0.7, names)
+            verdict_from(
+                VerdictClass::ProcessChange,
+                VerdictMode::LevelShift,
+                None,
+                g,
+                det,
+                0.7,
+                names,
+            )
         } else {
             let e = c1.unwrap_or(earliest);
             let (trend, _) = is_trend(blocks, cal, e, last);
             let mode = if trend { VerdictMode::Drift } else { VerdictMode::Bias };
-            let mut v =
-                verdict_from(VerdictClass::SensorFault, mode, e.sensor, g, e, 0.8, names);
+            let mut v = verdict_from(VerdictClass::SensorFault, mode, e.sensor, g, e, 0.8, names);
             v.magnitude = e.magnitude;
             v.magnitude_basis = e.channel;
             v
@@ -454,20 +492,20 @@ fn decide_group(
         }
     };
     // shape and context evidence
-    if let Some(lead) = g.iter().max_by(|a, b| a.magnitude.total_cmp(&b.magnitude)) {
-        let (f, s) = halves(blocks, cal, lead, last);
-        if f.is_finite() && s.is_finite() && s > 0.0 {
-            v.evidence.push(EvidenceItem {
-                test: "shape_half_ratio".to_owned(),
-                statistic: f / s,
-                threshold: 0.5,
-                p_value: None,
-                detail: format!(
-                    "mean |u| first half {f:.2} vs second half {s:.2} of the episode: below \
-                     0.5 reads as a trend, otherwise a step"
-                ),
-            });
-        }
+    if let Some(lead) = g.iter().max_by(|a, b| a.magnitude.total_cmp(&b.magnitude))
+        && let Some((rise, level, lo)) = shape(blocks, cal, lead, last)
+    {
+        v.evidence.push(EvidenceItem {
+            test: "shape_rise_over_level".to_owned(),
+            statistic: if level != 0.0 { rise / level } else { 0.0 },
+            threshold: 0.5,
+            p_value: None,
+            detail: format!(
+                "Theil-Sen line over the episode rises {rise:.2} against a median level of \
+                 {level:.2} (slope lower 95% bound {lo:.4} per step): a rise of at least half \
+                 the level with a positive slope reads as a trend, otherwise a step"
+            ),
+        });
     }
     let (a, b) = (v.onset_block, v.detected_block.min(last));
     let med = |x: &[f64]| {

@@ -318,8 +318,15 @@ pub fn evaluate_asset(
 ) -> Result<AssetEvaluation, BaselineError> {
     let mut scores = RowScores::new(values.nrows(), values.ncols());
     score_rows(baseline, values, &mut scores)?;
-    let blocks =
-        block_features(baseline, values, origin_ms, &scores, p.block_ms, p.spike_factor, p.min_fill);
+    let blocks = block_features(
+        baseline,
+        values,
+        origin_ms,
+        &scores,
+        p.block_ms,
+        p.spike_factor,
+        p.min_fill,
+    );
     let st = streaks(values, &scores.regime, p.min_streak_rows);
     let episodes = detect(baseline, cal, &blocks, &st, p);
     let mut level_u = ndarray::Array2::from_elem(blocks.level.dim(), f64::NAN);

@@ -370,8 +370,7 @@ fn fit_and_calibrate(
         .collect();
     let baseline = settings.params.fit(&train, Some(first), Some(end))?;
     let frame = baseline.align(series, Some(baseline.fit_start_ms), Some(end))?;
-    let held: Vec<bool> =
-        (0..frame.n_rows()).map(|r| !train_of(frame.row_start_ms(r))).collect();
+    let held: Vec<bool> = (0..frame.n_rows()).map(|r| !train_of(frame.row_start_ms(r))).collect();
     let cal = calibrate(
         &baseline,
         frame.values.view(),
