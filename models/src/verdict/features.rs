@@ -79,6 +79,16 @@ impl Blocks {
     pub fn end_ms(&self, b: usize) -> i64 {
         self.start_ms(b) + self.block_ms
     }
+
+    /// Frees the per-block counts (`spikes`, `outside`, `filled`,
+    /// `regime_rows`) once detection is done: [`decide`](super::decide) reads
+    /// only the level, residual and texture blocks and the PCA ratios.
+    pub fn shed_counts(&mut self) {
+        self.spikes = Array2::zeros((0, 0));
+        self.outside = Array2::zeros((0, 0));
+        self.filled = Array2::zeros((0, 0));
+        self.regime_rows = Array2::zeros((0, 0));
+    }
 }
 
 /// Whether the value of sensor `s` lies outside its instrument range.
@@ -160,6 +170,16 @@ pub fn block_features(
                 out.regime_rows[[bl, reg]] += 1.0;
             }
         }
+        // the block's most occupied regime (ties: the one seen last)
+        let mut last_seen = vec![0usize; g];
+        for r in r0..r1 {
+            if let Some(reg) = scores.regime[r] {
+                last_seen[reg] = r + 1;
+            }
+        }
+        let reg = (0..g)
+            .filter(|&k| last_seen[k] > 0)
+            .max_by_key(|&k| (out.regime_rows[[bl, k]] as usize, last_seen[k]));
         for s in 0..p {
             for r in r0..r1 {
                 let v = values[[r, s]];
@@ -212,9 +232,6 @@ pub fn block_features(
                 }
             }
             if diffs.len() + 1 >= need {
-                let reg = (r0..r1)
-                    .filter_map(|r| scores.regime[r])
-                    .max_by_key(|&g| (r0..r1).filter(|&r| scores.regime[r] == Some(g)).count());
                 let rate = reg.and_then(|g| baseline.baseline_for(s, g)).and_then(|b| b.rate_scale);
                 if let Some(rate) = rate
                     && rate > 0.0
