@@ -81,9 +81,25 @@ impl ConditionRegression {
         row: ArrayView1<'_, f64>,
         regime: usize,
     ) -> Option<f64> {
-        let mut x = vec![0.0; self.coef.len()];
-        features(regimes, self.n_running, row, regime, &mut x)?;
-        Some(x.iter().zip(&self.coef).map(|(a, b)| a * b).sum())
+        // the dot product of `features` with the coefficients, without
+        // building the feature vector (this runs for every row and sensor)
+        if regime == 0 {
+            return None;
+        }
+        let c = &self.coef;
+        let mut y = c[0];
+        if regime >= 2 && regime <= self.n_running {
+            y += c[regime - 1];
+        }
+        let off = self.n_running;
+        for k in 0..regimes.context_sensors().len() {
+            let z = regimes.standardise_context(row, k);
+            if !z.is_finite() {
+                return None;
+            }
+            y += c[off + 2 * k] * z + c[off + 2 * k + 1] * z * z;
+        }
+        Some(y)
     }
 
     /// Residual z of one row: `(y - ŷ) / residual_scale`; NaN when `y` or
