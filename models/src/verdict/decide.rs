@@ -29,6 +29,9 @@
 //!               exactly one sensor               → sensor_fault on it
 //!    a condition group made only of residual episodes that overlap a
 //!    context sensor fault is explained by it (a bad input) and dropped;
+//!    a sensor or equipment verdict whose line falls by more than half its
+//!    median level over the episode is a transient excursion dying away by
+//!    itself and is not reported (common practice, no source);
 //!    mode by shape: a Theil–Sen line (Sen 1968) through the episode's
 //!    block values that rises by at least half their median level, with a
 //!    slope whose 95 % interval excludes 0, is a trend (drift /
@@ -267,7 +270,9 @@ pub fn decide(
     let cond_groups = group(change.iter().copied().filter(|e| !on_ctx(e)).collect(), p, last);
     let mut faulty_ctx: Vec<(usize, usize)> = Vec::new();
     for g in ctx_groups {
-        let v = decide_group(baseline, cal, blocks, &g, names, &mut peers, p, last);
+        let Some(v) = decide_group(baseline, cal, blocks, &g, names, &mut peers, p, last) else {
+            continue;
+        };
         if v.class == VerdictClass::SensorFault {
             faulty_ctx.extend(g.iter().map(|e| e.span(last)));
         }
@@ -278,7 +283,7 @@ pub fn decide(
             e.channel == Channel::Resid && faulty_ctx.iter().any(|&f| overlaps(e.span(last), f, 0))
         });
         if !explained {
-            out.push(decide_group(baseline, cal, blocks, &g, names, &mut peers, p, last));
+            out.extend(decide_group(baseline, cal, blocks, &g, names, &mut peers, p, last));
         }
     }
     out.sort_by_key(|v| (v.detected_block, v.sensor));
@@ -316,7 +321,7 @@ fn decide_group(
     peers: &mut impl FnMut(&Episode) -> PeerSupport,
     p: &VerdictParams,
     last: usize,
-) -> Verdict {
+) -> Option<Verdict> {
     let is_ctx = |s: usize| baseline.sensors[s].role == SensorRole::Context;
     let mut sensors: Vec<usize> = g.iter().filter_map(|e| e.sensor).collect();
     sensors.sort_unstable();
@@ -533,5 +538,16 @@ fn decide_group(
         });
     }
     v.evidence.extend(peer_items);
-    v
+    // a sensor or equipment change that is dying away by itself within its
+    // episode (its line falls by more than half its level) is a transient
+    // excursion, not a lasting change
+    if v.class != VerdictClass::ProcessChange
+        && let Some(lead) = g.iter().max_by(|a, b| a.magnitude.total_cmp(&b.magnitude))
+        && let Some((rise, level, _)) = shape(blocks, cal, lead, last)
+        && level > 0.0
+        && rise < -0.5 * level
+    {
+        return None;
+    }
+    Some(v)
 }
