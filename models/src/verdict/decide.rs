@@ -207,7 +207,9 @@ pub fn decide(
         .into_iter()
         .filter(|e| {
             e.channel != Channel::Spikes
-                || !noisy.iter().any(|n| n.sensor == e.sensor && overlaps(n.span(last), e.span(last), slack))
+                || !noisy
+                    .iter()
+                    .any(|n| n.sensor == e.sensor && overlaps(n.span(last), e.span(last), slack))
         })
         .collect();
     let absorbed = |e: &Episode| -> bool {
