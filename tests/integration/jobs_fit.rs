@@ -8,7 +8,9 @@ use telltale_datasets::{FleetParams, generate_fleet};
 use telltale_models::ParamGuard;
 use telltale_models::baseline::{AssetBaseline, SensorRole, SensorSeries, SensorSpec};
 use telltale_pipelines::io::{HistoryReader, HistoryWriter, HistoryWriterOptions};
-use telltale_pipelines::jobs::{FailureKind, FitOutcome, FitSettings, Store, run_fit};
+use telltale_pipelines::jobs::{
+    FailureKind, FitOutcome, FitSettings, Store, TrainingChunks, run_fit,
+};
 use telltale_pipelines::registry::{Registry, Role};
 
 /// A three-pump fleet (one station) and its fit end, epoch ms.
@@ -125,8 +127,38 @@ fn stored_baseline_equals_a_direct_models_fit() {
                     }
                 })
                 .collect();
-            let direct = AssetBaseline::params().check().unwrap().fit(&series, None, None).unwrap();
             let stored = store.read_baseline(&a.asset).unwrap();
+            // the fit job trains on the even chunks of the span (the odd ones
+            // calibrate the scan): the same split by hand
+            let first =
+                series.iter().filter_map(|s| s.usable().next().map(|(t, _)| t)).min().unwrap();
+            let last =
+                series.iter().filter_map(|s| s.usable().last().map(|(t, _)| t)).max().unwrap();
+            let end = (last + 1).min(until);
+            let chunks = TrainingChunks::new(first, end, 3_600_000);
+            let kept: Vec<(Vec<i64>, Vec<f64>, Vec<bool>)> = series
+                .iter()
+                .map(|s| {
+                    let keep: Vec<usize> =
+                        (0..s.ts_ms.len()).filter(|&i| chunks.trains(s.ts_ms[i])).collect();
+                    (
+                        keep.iter().map(|&i| s.ts_ms[i]).collect(),
+                        keep.iter().map(|&i| s.values[i]).collect(),
+                        keep.iter().map(|&i| s.good[i]).collect(),
+                    )
+                })
+                .collect();
+            let train: Vec<SensorSeries<'_>> = series
+                .iter()
+                .zip(&kept)
+                .map(|(s, k)| SensorSeries { ts_ms: &k.0, values: &k.1, good: &k.2, spec: s.spec })
+                .collect();
+            let direct = AssetBaseline::params()
+                .check()
+                .unwrap()
+                .fit(&train, Some(first), Some(end))
+                .unwrap();
+            assert!(stored.calibration.is_some(), "{}: the fit stores a calibration", a.asset);
             assert_eq!(
                 serde_json::to_value(&stored.baseline).unwrap(),
                 serde_json::to_value(&direct).unwrap(),

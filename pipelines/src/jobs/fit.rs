@@ -323,6 +323,32 @@ fn fit_one(ctx: &RunCtx<'_>, p: &Pending) -> Result<Done> {
     Ok(Done::Fitted(fitted, entry))
 }
 
+/// The interleaved split of a fit span into training and held-out chunks
+/// (see [`fit_and_calibrate`]'s documentation in the module source):
+/// chunks of `clamp(span / 6, one block, 2 days)`, rounded down to whole
+/// blocks, counted from the block boundary at or before the first reading;
+/// even chunks train.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct TrainingChunks {
+    base: i64,
+    chunk: i64,
+}
+
+impl TrainingChunks {
+    /// The split of `[first_ms, end_ms)` for evaluation steps of `block_ms`.
+    pub fn new(first_ms: i64, end_ms: i64, block_ms: i64) -> Self {
+        let block = block_ms.max(1);
+        let span = (end_ms - first_ms).max(1);
+        let chunk = (span / 6).clamp(block, 2 * 86_400_000);
+        let chunk = (chunk / block).max(1) * block;
+        TrainingChunks { base: first_ms.div_euclid(block) * block, chunk }
+    }
+    /// Whether a reading at `t_ms` trains the baseline (else it is held out).
+    pub fn trains(&self, t_ms: i64) -> bool {
+        (t_ms - self.base).div_euclid(self.chunk) % 2 == 0
+    }
+}
+
 /// Fits the baseline on half of the asset's fit span and calibrates the
 /// verdict engine on the other half, scored as if it were new (see
 /// [`telltale_models::verdict::calibrate`](mod@telltale_models::verdict::calibrate)).
@@ -343,11 +369,8 @@ fn fit_and_calibrate(
         return Err(BaselineError::NoReadings);
     };
     let end = (last + 1).min(settings.until_ms);
-    let span = (end - first).max(1);
-    let chunk = (span / 6).clamp(v.block_ms, 2 * 86_400_000);
-    let chunk = (chunk / v.block_ms).max(1) * v.block_ms;
-    let base = first.div_euclid(v.block_ms) * v.block_ms;
-    let train_of = |t: i64| ((t - base) / chunk) % 2 == 0;
+    let chunks = TrainingChunks::new(first, end, v.block_ms);
+    let train_of = |t: i64| chunks.trains(t);
     // training copies: readings of the even chunks only
     let kept: Vec<(Vec<i64>, Vec<f64>, Vec<bool>)> = series
         .iter()

@@ -33,7 +33,10 @@ pub use evaluate::{
     InvalidEvaluateSettings, LeadMark, LeadTimeReport, ModeScore, Outage, Score, SettingsEcho,
     SuspicionCounts, WindowOpen, evaluate, read_outages, read_outages_from,
 };
-pub use fit::{FailedAsset, FailureKind, FitOutcome, FitReport, FitSettings, FittedAsset, run_fit};
+pub use fit::{
+    FailedAsset, FailureKind, FitOutcome, FitReport, FitSettings, FittedAsset, TrainingChunks,
+    run_fit,
+};
 pub use naive::{NaiveSettings, run_naive};
 pub use scan::{ScanReport, ScanSettings, run_scan};
 pub use store::{Manifest, ManifestEntry, Store, StoredBaseline, StoredRole, StoredSensor};
