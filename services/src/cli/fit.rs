@@ -7,7 +7,6 @@ use clap::Args;
 use std::io::Write;
 use std::path::PathBuf;
 use telltale_pipelines::jobs::{FitOutcome, FitReport, FitSettings, run_fit};
-use telltale_pipelines::time::parse_time;
 
 /// Arguments of `telltale fit`.
 ///
@@ -43,17 +42,11 @@ pub struct FitArgs {
     pub threads: Option<usize>,
 }
 
-fn time_flag(flag: &str, value: &str) -> Result<i64, UsageError> {
-    parse_time(value)
-        .map(|t| t.timestamp_millis())
-        .map_err(|e| UsageError(format!("--{flag}: {e}")))
-}
-
 impl FitArgs {
     /// Stage 1: every flag checked before any data is read.
     fn settings(&self) -> Result<FitSettings, UsageError> {
-        let until = time_flag("until", &self.until)?;
-        let from = self.from.as_deref().map(|v| time_flag("from", v)).transpose()?;
+        let until = super::time_flag_ms("until", &self.until)?;
+        let from = self.from.as_deref().map(|v| super::time_flag_ms("from", v)).transpose()?;
         if let Some(f) = from
             && f >= until
         {
@@ -63,14 +56,7 @@ impl FitArgs {
                 self.until
             )));
         }
-        if let Some(fleet) = &self.fleet
-            && !fleet.is_file()
-        {
-            return Err(UsageError(format!(
-                "--fleet {}: no such file; give the fleet registry TOML or leave --fleet out",
-                fleet.display()
-            )));
-        }
+        super::check_fleet_flag(self.fleet.as_ref())?;
         if self.threads == Some(0) {
             return Err(UsageError(
                 "--threads must be at least 1; leave it out to use every core".to_owned(),

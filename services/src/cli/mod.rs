@@ -9,7 +9,10 @@ mod evaluate;
 mod fit;
 mod scan;
 
+use crate::UsageError;
 use clap::{Parser, Subcommand};
+use std::path::PathBuf;
+use telltale_pipelines::time::parse_time;
 
 pub use demo::DemoArgs;
 pub use evaluate::EvaluateArgs;
@@ -59,5 +62,23 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<()> {
         Command::Fit(args) => fit::run(&args),
         Command::Scan(args) => scan::run(&args),
         Command::Evaluate(args) => evaluate::run(&args),
+    }
+}
+
+/// A time flag (RFC 3339 or a date) as epoch milliseconds; the error names the flag.
+pub(crate) fn time_flag_ms(flag: &str, value: &str) -> Result<i64, UsageError> {
+    parse_time(value)
+        .map(|t| t.timestamp_millis())
+        .map_err(|e| UsageError(format!("--{flag}: {e}")))
+}
+
+/// Checks that an optional `--fleet` registry file exists.
+pub(crate) fn check_fleet_flag(fleet: Option<&PathBuf>) -> Result<(), UsageError> {
+    match fleet {
+        Some(f) if !f.is_file() => Err(UsageError(format!(
+            "--fleet {}: no such file; give the fleet registry TOML or leave --fleet out",
+            f.display()
+        ))),
+        _ => Ok(()),
     }
 }

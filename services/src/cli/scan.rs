@@ -9,7 +9,6 @@ use std::path::PathBuf;
 use telltale_pipelines::io::{FileFormat, write_suspicions_to};
 use telltale_pipelines::jobs::{ScanReport, ScanSettings, run_scan};
 use telltale_pipelines::record::Suspicion;
-use telltale_pipelines::time::parse_time;
 
 /// Output formats of the suspicions.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
@@ -57,31 +56,18 @@ pub struct ScanArgs {
     pub threads: Option<usize>,
 }
 
-fn time_flag(flag: &str, value: &str) -> Result<i64, UsageError> {
-    parse_time(value)
-        .map(|t| t.timestamp_millis())
-        .map_err(|e| UsageError(format!("--{flag}: {e}")))
-}
-
 impl ScanArgs {
     /// Every flag checked before any data is read.
     pub(crate) fn settings(&self) -> Result<ScanSettings, UsageError> {
-        let from = time_flag("from", &self.from)?;
-        let to = time_flag("to", &self.to)?;
+        let from = super::time_flag_ms("from", &self.from)?;
+        let to = super::time_flag_ms("to", &self.to)?;
         if from >= to {
             return Err(UsageError(format!(
                 "--from {} is not before --to {}; the scan span [from, to) would be empty",
                 self.from, self.to
             )));
         }
-        if let Some(fleet) = &self.fleet
-            && !fleet.is_file()
-        {
-            return Err(UsageError(format!(
-                "--fleet {}: no such file; give the fleet registry TOML or leave --fleet out",
-                fleet.display()
-            )));
-        }
+        super::check_fleet_flag(self.fleet.as_ref())?;
         if !self.store.is_dir() {
             return Err(UsageError(format!(
                 "--store {}: no such directory; run `telltale fit --store {}` first",
