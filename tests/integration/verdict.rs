@@ -446,6 +446,34 @@ fn frozen_condition_sensor_is_stuck() {
 }
 
 #[test]
+fn several_sensors_freezing_together_are_no_stuck_sensor() {
+    // DESIGN 5 treats a whole asset going quiet as a coverage fact; by the
+    // same reasoning three sensors repeating their readings from the same
+    // minute are the machine or its data path standing still, not three
+    // instruments failing at once (common practice, no source). A single
+    // frozen sensor is still stuck (`frozen_condition_sensor_is_stuck`).
+    for seed in [15, 1500] {
+        eprintln!("seed {seed}");
+        let (mut a, b, cal) = fitted(seed);
+        let at = SCAN + 3 * DAY + 10 * HOUR;
+        for s in [HEAD, TEMP, VIB] {
+            a.freeze(s, at, at + DAY);
+        }
+        let s = scan(&a, &b, &cal, SCAN, END);
+        assert!(
+            s.eval.episodes.iter().filter(|e| e.channel == Channel::Frozen).count() >= 3,
+            "the frozen runs were not even detected:\n{}",
+            describe(&s)
+        );
+        assert!(
+            !s.verdicts.iter().any(|v| v.mode == VerdictMode::Stuck),
+            "a joint freeze was called a stuck sensor:\n{}",
+            describe(&s)
+        );
+    }
+}
+
+#[test]
 fn one_silent_sensor_is_a_dropout() {
     // three seeds: the behaviour, not one lucky noise path
     for seed in [11, 1100, 1101] {

@@ -13,6 +13,9 @@
 //!             occupancy episode is explained by the new regime.
 //! 2. signatures → sensor_fault: frozen → stuck, silent → dropout,
 //!             outside → out_of_range, spikes → spikes; texture up → noise.
+//!             Frozen runs on two or more sensors starting within
+//!             `close_blocks` of each other are the machine standing still
+//!             (or its data path frozen), not instrument faults: no verdict.
 //! 3. occupancy  → process_change/regime_change.
 //! 4. context-level episodes and condition episodes (residual, or level
 //!    without a regression) are grouped apart, each when their spans overlap
@@ -225,8 +228,18 @@ pub fn decide(
                 e.onset_block + slack >= a && e.onset_block <= b
             }))
     };
+    // several sensors freezing together are the machine standing still (or
+    // its data path frozen), not several instruments failing at once
+    let frozen_together = |e: &Episode| -> bool {
+        e.channel == Channel::Frozen
+            && sig.iter().any(|o| {
+                o.channel == Channel::Frozen
+                    && o.sensor != e.sensor
+                    && o.onset_block.abs_diff(e.onset_block) <= slack
+            })
+    };
     let mut out = Vec::new();
-    for e in &sig {
+    for e in sig.iter().filter(|e| !frozen_together(e)) {
         let mode = match e.channel {
             Channel::Frozen => VerdictMode::Stuck,
             Channel::Silent => VerdictMode::Dropout,
