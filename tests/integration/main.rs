@@ -1,6 +1,7 @@
 //! telltale's cross-crate integration tests: one binary, one module per area.
 #![allow(clippy::unwrap_used, reason = "test code: a panic is a failed test")]
 
+mod backtest;
 mod golden_changepoint;
 mod golden_robust;
 mod golden_trend_twosample;

@@ -8,6 +8,8 @@
 //!   baselines and reporting ranked suspicions with evidence.
 //! - [`store`]: the baseline store directory (one JSON file per asset and a
 //!   manifest), written atomically.
+//! - [`backtest`]: `telltale backtest`, a walk-forward replay of fit and
+//!   scan over an archive, scored against its failure and maintenance records.
 //! - [`mod@evaluate`]: `telltale evaluate`, detection quality of suspicions
 //!   against ground-truth events (recall, verdict accuracy, delay, lead time,
 //!   false alarms per 100 asset-weeks).
@@ -21,12 +23,18 @@
 //! # Ok::<(), telltale_pipelines::Error>(())
 //! ```
 
+pub mod backtest;
 pub mod evaluate;
 pub mod fit;
 pub mod naive;
 pub mod scan;
 pub mod store;
+pub mod workorders;
 
+pub use backtest::{
+    AssetRow, BacktestReport, BacktestSettings, FoldRecord, Paused, QuietReport, Replay, Reported,
+    SweepPoint, merge_at, ranked_at, run_replay, score_replay, write_outputs,
+};
 pub use evaluate::{
     BestMatch, ClassScore, CleanAssets, ConfusionRow, EvaluateSettings, EvaluationReport,
     EventCounts, EventOutcome, FailureOutcome, FalseAlarm, FalseAlarmReport,
@@ -40,3 +48,8 @@ pub use fit::{
 pub use naive::{NaiveSettings, run_naive};
 pub use scan::{ScanReport, ScanSettings, run_scan};
 pub use store::{Manifest, ManifestEntry, Store, StoredBaseline, StoredRole, StoredSensor};
+pub use workorders::{
+    DEFAULT_FAILURE_WORDS, DEFAULT_MAINTENANCE_WORDS, ImportReport, ImportSettings,
+    InvalidImportSettings, UnusedReason, UnusedRow, ValidImportSettings, import_workorders,
+    import_workorders_from, write_rejects, write_rejects_to,
+};

@@ -211,7 +211,7 @@ pub fn asset_from_file_name(name: &str) -> Option<String> {
 
 /// Writes `bytes` to `path` atomically: temporary file in the same folder,
 /// fsync, rename over `path`, fsync of the folder.
-fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
     let dir = path.parent().unwrap_or_else(|| Path::new("."));
     let mut tmp = tempfile::Builder::new()
         .prefix(".tmp-")

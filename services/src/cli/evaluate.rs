@@ -53,7 +53,7 @@ fn time_flag(flag: &str, value: &str) -> Result<DateTime<Utc>, UsageError> {
     parse_time(value).map_err(|e| UsageError(format!("--{flag}: {e}")))
 }
 
-fn hours_flag(flag: &str, h: f64) -> Result<TimeDelta, UsageError> {
+pub(crate) fn hours_flag(flag: &str, h: f64) -> Result<TimeDelta, UsageError> {
     // 10^6 h is over a century: far beyond any sensible window
     if !h.is_finite() || !(0.0..=1e6).contains(&h) {
         return Err(UsageError(format!("--{flag} must be between 0 and 1000000 hours, got {h}")));
@@ -61,7 +61,7 @@ fn hours_flag(flag: &str, h: f64) -> Result<TimeDelta, UsageError> {
     Ok(TimeDelta::milliseconds((h * 3_600_000.0).round() as i64))
 }
 
-fn input_file(flag: &str, path: &Path) -> Result<(), UsageError> {
+pub(crate) fn input_file(flag: &str, path: &Path) -> Result<(), UsageError> {
     if path.is_file() {
         Ok(())
     } else {
@@ -143,11 +143,11 @@ pub(crate) fn run(args: &EvaluateArgs) -> anyhow::Result<()> {
     Ok(())
 }
 
-fn pct(x: Option<f64>) -> String {
+pub(crate) fn pct(x: Option<f64>) -> String {
     x.map_or_else(|| "-".to_owned(), |v| format!("{:.1}%", 100.0 * v))
 }
 
-fn num(x: Option<f64>) -> String {
+pub(crate) fn num(x: Option<f64>) -> String {
     x.map_or_else(|| "-".to_owned(), |v| format!("{v:.1}"))
 }
 
@@ -165,7 +165,7 @@ fn score_cells(s: &Score) -> String {
 }
 
 /// The tables on stdout.
-fn print_report(out: &mut impl Write, r: &EvaluationReport) -> std::io::Result<()> {
+pub(crate) fn print_report(out: &mut impl Write, r: &EvaluationReport) -> std::io::Result<()> {
     let s = &r.settings;
     writeln!(
         out,
@@ -345,6 +345,6 @@ fn print_report(out: &mut impl Write, r: &EvaluationReport) -> std::io::Result<(
     Ok(())
 }
 
-fn num2(x: Option<f64>) -> String {
+pub(crate) fn num2(x: Option<f64>) -> String {
     x.map_or_else(|| "-".to_owned(), |v| format!("{v:.2}"))
 }

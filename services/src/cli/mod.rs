@@ -4,9 +4,11 @@
 //! `*Args` structs here, and each job turns them into checked settings
 //! before any data is read, so usage errors surface at once.
 
+mod backtest;
 mod demo;
 mod evaluate;
 mod fit;
+mod import;
 mod scan;
 
 use crate::UsageError;
@@ -14,9 +16,11 @@ use clap::{Parser, Subcommand};
 use std::path::PathBuf;
 use telltale_pipelines::time::parse_time;
 
+pub use backtest::BacktestArgs;
 pub use demo::DemoArgs;
 pub use evaluate::EvaluateArgs;
 pub use fit::FitArgs;
+pub use import::ImportArgs;
 pub use scan::ScanArgs;
 
 /// telltale: tells a failing sensor from a real process change from a developing
@@ -50,6 +54,10 @@ pub enum Command {
     Scan(ScanArgs),
     /// Measure detection quality: suspicions in [--from, --to) against ground-truth events
     Evaluate(EvaluateArgs),
+    /// Replay fit and scan walk-forward over an archive; score lead time and false alarms
+    Backtest(BacktestArgs),
+    /// Turn a work-order export (CSV) into failure and maintenance events; report unused rows
+    ImportEvents(ImportArgs),
 }
 
 /// Run the parsed command.
@@ -62,6 +70,8 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<()> {
         Command::Fit(args) => fit::run(&args),
         Command::Scan(args) => scan::run(&args),
         Command::Evaluate(args) => evaluate::run(&args),
+        Command::Backtest(args) => backtest::run(&args),
+        Command::ImportEvents(args) => import::run(&args),
     }
 }
 
