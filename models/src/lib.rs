@@ -34,6 +34,7 @@ pub mod autocorr;
 pub mod baseline;
 pub mod changepoint;
 pub mod dist;
+pub mod downsample;
 pub mod multitest;
 pub mod robust;
 pub mod signatures;
