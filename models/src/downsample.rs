@@ -191,7 +191,8 @@ mod tests {
     #[test]
     fn coarsening_equals_computing_at_the_coarser_width() {
         let ts: Vec<i64> = (0..1000).map(|i| i * 7).collect();
-        let v: Vec<f64> = ts.iter().map(|&t| ((t as f64) * 0.013).sin() * (t % 11) as f64).collect();
+        let v: Vec<f64> =
+            ts.iter().map(|&t| ((t as f64) * 0.013).sin() * (t % 11) as f64).collect();
         let fine = minmax_columns(&ts, &v, 0, 7000, 60);
         let direct = minmax_columns(&ts, &v, 0, 7000, 20);
         assert_eq!(coarsen(&fine, 3), direct);
