@@ -4,7 +4,9 @@
 //! 0. weak     level, residual and texture episodes with p > `episode_p`,
 //!             or whose sustained size (median over the episode) is below
 //!             `min_level` / `min_resid` / `min_texture`, are dropped: within
-//!             what the held-out data did, or too small to act on.
+//!             what the held-out data did, or too small to act on; a
+//!             texture episode spanning fewer than `min_noise_blocks` steps
+//!             is a burst of the process (a start, a stop), not noise.
 //! 1. absorb   a level/residual/texture episode on a sensor that overlaps an
 //!             instrument signature (frozen, silent, outside range, spikes) of
 //!             the same sensor belongs to the signature; a residual episode
@@ -187,7 +189,10 @@ pub fn decide(
             Channel::Level if e.sensor.is_some_and(is_ctx) => size >= p.min_context,
             Channel::Level => size >= p.min_level,
             Channel::Resid => size >= p.min_resid,
-            Channel::Texture => size >= p.min_texture,
+            Channel::Texture => {
+                let (a, b) = e.span(last);
+                size >= p.min_texture && b + 1 - a >= p.min_noise_blocks
+            }
             _ => true,
         }
     };

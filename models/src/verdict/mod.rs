@@ -53,6 +53,7 @@ use ndarray::ArrayView2;
 /// | `min_context` | 2 | robust σ | sustained size a context sensor's level episode needs: the operating point left its usual envelope (weather fronts and reservoir wander stay below it) |
 /// | `min_resid` | 0.75 | residual σ | sustained size a residual episode needs |
 /// | `min_texture` | ln 1.5 | log ratio | sustained rise of the texture ratio a noise verdict needs |
+/// | `min_noise_blocks` | 4 | blocks | steps a texture episode must span (onset to end, or to the latest step) for a noise verdict: a noisier instrument stays noisy, a burst at a start or a stop is the process |
 /// | `occupancy_window` | 72 | blocks | window of the regime-occupancy test |
 /// | `fdr_q` | 0.01 | share | Benjamini–Hochberg level across the fleet |
 /// | `episode_p` | 0.01 | prob. | a level, residual or texture episode takes part in a verdict only at this p-value or below |
@@ -91,6 +92,8 @@ pub struct VerdictParams {
     pub min_resid: f64,
     /// Sustained rise of the log texture ratio.
     pub min_texture: f64,
+    /// Steps a texture episode must span for a noise verdict.
+    pub min_noise_blocks: usize,
     /// Regime occupancy window, blocks.
     pub occupancy_window: usize,
     /// Benjamini–Hochberg level.
@@ -117,6 +120,7 @@ impl Default for VerdictParams {
             min_context: 2.0,
             min_resid: 0.75,
             min_texture: std::f64::consts::LN_2 * 0.585,
+            min_noise_blocks: 4,
             occupancy_window: 72,
             fdr_q: 0.01,
             episode_p: 0.01,
@@ -140,8 +144,15 @@ impl VerdictParams {
         if !(self.cusum_k >= 0.0 && self.cusum_k < 5.0) {
             return bad("cusum_k", "in [0, 5)");
         }
-        if self.close_blocks == 0 || self.spike_window == 0 || self.min_streak_rows == 0 {
-            return bad("close_blocks, spike_window and min_streak_rows", "at least 1");
+        if self.close_blocks == 0
+            || self.spike_window == 0
+            || self.min_streak_rows == 0
+            || self.min_noise_blocks == 0
+        {
+            return bad(
+                "close_blocks, spike_window, min_streak_rows and min_noise_blocks",
+                "at least 1",
+            );
         }
         if !(self.min_fill > 0.0 && self.min_fill <= 1.0) {
             return bad("min_fill", "in (0, 1]");
