@@ -55,7 +55,9 @@
 //! evidence item). A suspicion is rejected at level `q` exactly when its
 //! adjusted p-value is at most `q`, so each sweep point is the default
 //! replay filtered at `q` and merged again; the replay policy (holds,
-//! re-fits) stays that of the default level at every point.
+//! re-fits) stays that of the default level at every point. Levels looser
+//! than the default add little: an episode takes part in a verdict only at
+//! `episode_p` (default 0.01) or below, a scan setting the sweep leaves alone.
 //!
 //! The figures support decisions about trust and tuning; telltale is
 //! decision support, not a protective or safety function.
@@ -91,7 +93,7 @@ const WEEK_MS: f64 = 7.0 * DAY_MS as f64;
 /// | `min_fit_ms`      | 7 days   | least history after a reset or accepted change to re-fit  |
 /// | `quiet_before_ms` | 30 days  | time before a failure that is not quiet                   |
 /// | `quiet_after_ms`  | 7 days   | time after a failure that is not quiet                    |
-/// | `sweep`           | 1e-6 .. 0.5 | Benjamini–Hochberg levels of the sensitivity sweep     |
+/// | `sweep`           | 1e-10 .. 0.01 | Benjamini–Hochberg levels of the sensitivity sweep   |
 #[derive(Debug, Clone)]
 #[non_exhaustive]
 pub struct BacktestSettings {
@@ -152,7 +154,7 @@ impl BacktestSettings {
             min_fit_ms: 7 * DAY_MS,
             quiet_before_ms: 30 * DAY_MS,
             quiet_after_ms: 7 * DAY_MS,
-            sweep: vec![1e-6, 1e-5, 1e-4, 1e-3, 0.01, 0.05, 0.2, 0.5],
+            sweep: vec![1e-10, 1e-8, 1e-6, 1e-5, 1e-4, 1e-3, 3e-3, 0.01],
             params: VerdictParams::default(),
             skip_bad_files: false,
             threads: 0,
@@ -383,7 +385,7 @@ pub fn run_replay(settings: &BacktestSettings) -> Result<Replay> {
     let mut state: BTreeMap<String, AssetState> =
         assets.iter().map(|a| (a.clone(), AssetState::default())).collect();
     let sweep_max = settings.sweep.iter().copied().fold(settings.params.fdr_q, f64::max);
-    let mut scan_params = settings.params.clone();
+    let mut scan_params = settings.params;
     scan_params.fdr_q = sweep_max;
     let q_default = settings.params.fdr_q;
 
@@ -449,7 +451,7 @@ pub fn run_replay(settings: &BacktestSettings) -> Result<Replay> {
                 fs.assets.clone_from(&with_data);
                 fs.skip_bad_files = settings.skip_bad_files;
                 fs.threads = settings.threads;
-                fs.verdict = settings.params.clone();
+                fs.verdict = settings.params;
                 let report = run_fit(&fs)?;
                 ok.extend(report.assets_fitted.into_iter().map(|f| f.asset));
             }
@@ -498,7 +500,7 @@ pub fn run_replay(settings: &BacktestSettings) -> Result<Replay> {
             let mut ss = ScanSettings::new(&settings.history, &store_dir, tau, step_end);
             ss.registry.clone_from(&settings.registry);
             ss.skip_bad_files = settings.skip_bad_files;
-            ss.params = scan_params.clone();
+            ss.params = scan_params;
             ss.threads = settings.threads;
             let report = run_scan(&ss)?;
             rows_scanned += report.rows_read;
