@@ -1179,3 +1179,210 @@ pub fn write_outputs(
     write_atomic(&p, &csv_bytes(&p, &header, rows)?)?;
     Ok(())
 }
+
+#[cfg(test)]
+mod tests {
+    //! Hand-made cases for the replay's bookkeeping and scoring rules; every
+    //! expected figure is a hand computation from the records of its test,
+    //! with the arithmetic in the comments.
+    use super::*;
+    use crate::record::{Mode, suspicion_id};
+    use crate::time::parse_time;
+
+    fn t(s: &str) -> chrono::DateTime<chrono::Utc> {
+        parse_time(s).unwrap()
+    }
+
+    fn ms(s: &str) -> i64 {
+        t(s).timestamp_millis()
+    }
+
+    fn cand(
+        asset: &str,
+        sensor: &str,
+        mode: Mode,
+        onset: &str,
+        detected: &str,
+        adjusted_p: f64,
+    ) -> Reported {
+        Reported {
+            suspicion: Suspicion {
+                id: suspicion_id(asset, Some(sensor), mode.class(), mode, t(onset)),
+                rank: 1,
+                asset: asset.into(),
+                sensor: Some(sensor.into()),
+                class: mode.class(),
+                mode,
+                score: 1.0 - adjusted_p,
+                magnitude: 3.0,
+                onset: t(onset),
+                detected: t(detected),
+                summary: String::new(),
+                evidence: vec![],
+            },
+            adjusted_p,
+            reported: t(detected),
+            fold: 0,
+        }
+    }
+
+    fn point(asset: &str, class: Class, start: &str, end: Option<&str>) -> Event {
+        Event {
+            asset: asset.into(),
+            sensor: None,
+            class,
+            mode: None,
+            start: t(start),
+            end: end.map(t),
+            note: String::new(),
+        }
+    }
+
+    #[test]
+    fn continuing_episodes_merge_and_others_do_not() {
+        let day = DAY_MS;
+        let c = vec![
+            // 0: first report of an episode
+            cand("P1", "vib", Mode::Degradation, "2026-03-15", "2026-03-16T12:00:00Z", 1e-5),
+            // 1: same key, onset within one step of the last detection: merged
+            cand("P1", "vib", Mode::Degradation, "2026-03-16", "2026-03-17T12:00:00Z", 1e-4),
+            // 2: same asset and sensor, other class: its own suspicion
+            cand("P1", "vib", Mode::Bias, "2026-03-16", "2026-03-17T12:00:00Z", 1e-4),
+            // 3: same key, onset 03-20 > last detection 03-17T12 + 24 h: new
+            cand("P1", "vib", Mode::Degradation, "2026-03-20", "2026-03-20T06:00:00Z", 1e-4),
+            // 4: same key as 3 but above the level: dropped before merging
+            cand("P1", "vib", Mode::Degradation, "2026-03-20", "2026-03-21T06:00:00Z", 0.5),
+        ];
+        assert_eq!(merge_at(&c, 0.01, day), vec![0, 2, 3]);
+        // at 1e-5 only the first survives
+        assert_eq!(merge_at(&c, 1e-5, day), vec![0]);
+        // at 0.5 the fifth continues the fourth (onset 03-20 <= 03-20T06 + 24 h)
+        assert_eq!(merge_at(&c, 0.5, day), vec![0, 2, 3]);
+        // a longer step joins the fourth to the first (03-20 <= 03-17T12 + 3 d)
+        assert_eq!(merge_at(&c, 0.01, 3 * day), vec![0, 2]);
+    }
+
+    #[test]
+    fn maintenance_learns_from_its_end_and_a_failure_from_its_start() {
+        let ev = vec![
+            point("P2", Class::Maintenance, "2026-03-10", Some("2026-03-10T06:00:00Z")),
+            point("P1", Class::Failure, "2026-03-20", None),
+            point("P2", Class::Maintenance, "2026-03-02", None),
+        ];
+        let r = resets(&ev);
+        let p1 = &r["P1"];
+        assert_eq!((p1[0].start, p1[0].learn_from), (ms("2026-03-20"), ms("2026-03-20")));
+        // sorted by start; a maintenance row without end learns from its start
+        let p2 = &r["P2"];
+        assert_eq!((p2[0].start, p2[0].learn_from), (ms("2026-03-02"), ms("2026-03-02")));
+        assert_eq!((p2[1].start, p2[1].learn_from), (ms("2026-03-10"), ms("2026-03-10T06:00:00Z")));
+    }
+
+    #[test]
+    fn intervals_union_and_length() {
+        let u = union(vec![(5, 7), (1, 3), (2, 4), (9, 9), (7, 8)]);
+        assert_eq!(u, vec![(1, 4), (5, 8)]);
+        assert_eq!(length(&u), 6);
+        assert!(covered(&u, 1) && !covered(&u, 4) && covered(&u, 7));
+    }
+
+    /// A failure-only archive over four weeks, two pumps:
+    /// - P1 fails 2026-03-20T00; an equipment suspicion detected 03-16T12
+    ///   warns it 84 h ahead, re-reported once the next day (merged).
+    /// - P2 has maintenance 03-10T00..06 and was not judged 03-10..03-13
+    ///   (paused); a sensor suspicion on 03-05 lies in quiet time, one on
+    ///   03-10T08 inside the maintenance.
+    fn failure_only_case() -> (Replay, BacktestSettings) {
+        let events = vec![
+            point("P1", Class::Failure, "2026-03-20", None),
+            point("P2", Class::Maintenance, "2026-03-10", Some("2026-03-10T06:00:00Z")),
+        ];
+        let mut st = BacktestSettings::new("history.parquet", events, "work");
+        st.sweep = vec![1e-6, 1e-4];
+        let candidates = vec![
+            cand("P2", "flow", Mode::Bias, "2026-03-04", "2026-03-05T10:00:00Z", 0.005),
+            cand("P2", "flow", Mode::Bias, "2026-03-10T02:00:00Z", "2026-03-10T08:00:00Z", 0.002),
+            cand("P1", "vib", Mode::Degradation, "2026-03-15", "2026-03-16T12:00:00Z", 1e-5),
+            cand("P1", "vib", Mode::Degradation, "2026-03-16", "2026-03-17T12:00:00Z", 1e-4),
+        ];
+        let replay = Replay {
+            from_ms: ms("2026-03-01"),
+            to_ms: ms("2026-03-29"),
+            candidates,
+            folds: vec![],
+            paused: vec![Paused {
+                asset: "P2".into(),
+                start: t("2026-03-10"),
+                end: t("2026-03-13"),
+                reason: "maintenance".into(),
+            }],
+            assets: vec!["P1".into(), "P2".into()],
+            rows_scanned: 0,
+            fit_seconds: 0.0,
+            scan_seconds: 0.0,
+            seconds: 0.0,
+        };
+        (replay, st)
+    }
+
+    #[test]
+    fn failure_only_archive_scores_lead_time_and_quiet_time() {
+        let (replay, st) = failure_only_case();
+        let (r, sus) = score_replay(&replay, &st).unwrap();
+        assert_eq!(r.archive, "failure_only");
+        // kept at 0.01: candidates 0, 1, 2 (3 continues 2)
+        assert_eq!((r.suspicions, r.continuing_merged, sus.len()), (3, 1, 3));
+        // lead: 03-20T00 - 03-16T12 = 84 h
+        let lt = &r.evaluation.lead_time;
+        assert_eq!(lt.warned, 1);
+        assert!((lt.failures[0].lead_hours.unwrap() - 84.0).abs() < 1e-9);
+        let share = |h: f64| lt.marks.iter().find(|m| (m.hours - h).abs() < 1e-9).unwrap().share;
+        assert_eq!((share(24.0), share(72.0), share(168.0)), (Some(1.0), Some(1.0), Some(0.0)));
+        // Not quiet, clipped to [03-01, 03-29):
+        //   P1: failure - 30 d .. + 7 d -> [03-01, 03-27): quiet 2 d = 48 h
+        //   P2: maintenance 03-10T00 .. 03-10T06 + 24 h grace, and the pause
+        //       03-10 .. 03-13 + 24 h grace -> [03-10, 03-14): quiet 24 d = 576 h
+        // exposure 624 h = 3.714 asset-weeks; one quiet suspicion (03-05)
+        assert!((r.quiet.exposure_asset_weeks - 624.0 / 168.0).abs() < 1e-9);
+        assert_eq!(r.quiet.suspicions, 1);
+        assert!((r.quiet.per_100_asset_weeks.unwrap() - 100.0 * 168.0 / 624.0).abs() < 1e-9);
+        assert_eq!(r.quiet.by_class.get("sensor_fault"), Some(&1));
+        // judged: P1 4 weeks, P2 4 weeks - 3 days
+        assert!((r.judged_asset_weeks - (8.0 - 3.0 / 7.0)).abs() < 1e-9);
+        let p1 = &r.per_asset[0];
+        let p2 = &r.per_asset[1];
+        assert_eq!((p1.asset.as_str(), p1.suspicions, p1.equipment_fault), ("P1", 1, 1));
+        assert_eq!((p1.failures, p1.failures_warned, p1.in_quiet_time), (1, 1, 0));
+        assert_eq!(
+            (p2.asset.as_str(), p2.suspicions, p2.sensor_fault, p2.in_quiet_time),
+            ("P2", 2, 2, 1)
+        );
+        assert!((p2.judged_weeks - 25.0 / 7.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn sweep_tightens_and_marks_the_default() {
+        let (replay, st) = failure_only_case();
+        let (r, _) = score_replay(&replay, &st).unwrap();
+        let pts: Vec<(f64, bool, usize, usize)> =
+            r.sweep.iter().map(|p| (p.fdr_q, p.default, p.suspicions, p.failures_warned)).collect();
+        // 1e-6: nothing kept, the failure unwarned; 1e-4: candidates 2 and 3,
+        // merged to one, which warns; 0.01 (the default): three kept
+        assert_eq!(pts, vec![(1e-6, false, 0, 0), (1e-4, false, 1, 1), (0.01, true, 3, 1)]);
+        assert_eq!(r.sweep[0].quiet_per_100_asset_weeks, Some(0.0));
+        assert_eq!(r.sweep[0].warned_72h_share, Some(0.0));
+        assert_eq!(r.sweep[1].warned_72h_share, Some(1.0));
+        // no labelled changes in a failure-only archive: no recall
+        assert!(r.sweep.iter().all(|p| p.recall.is_none()));
+    }
+
+    #[test]
+    fn ranking_over_the_replay_is_by_score_then_detection() {
+        let (replay, _) = failure_only_case();
+        let ranked = ranked_at(&replay, 0.01, DAY_MS);
+        // scores 1 - p: 0.99999 (P1), 0.998 (P2 03-10), 0.995 (P2 03-05)
+        let order: Vec<(&str, u32)> = ranked.iter().map(|s| (s.asset.as_str(), s.rank)).collect();
+        assert_eq!(order, vec![("P1", 1), ("P2", 2), ("P2", 3)]);
+        assert_eq!(ranked[1].detected, t("2026-03-10T08:00:00Z"));
+    }
+}
