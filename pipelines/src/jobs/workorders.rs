@@ -69,7 +69,7 @@ use chrono::format::{Item, StrftimeItems};
 use chrono::{DateTime, NaiveDate, NaiveDateTime, Utc};
 use std::collections::{BTreeMap, BTreeSet};
 use std::fs::File;
-use std::io::{BufReader, BufWriter, Read, Write};
+use std::io::{BufReader, Read, Write};
 use std::path::Path;
 
 /// Default failure keywords: words a work order uses for a functional failure.
@@ -713,22 +713,7 @@ fn judge_row(
 /// I/O errors naming the file.
 pub fn write_rejects(path: impl AsRef<Path>, report: &ImportReport) -> Result<()> {
     let path = path.as_ref();
-    let dir = match path.parent() {
-        Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
-        _ => std::path::PathBuf::from("."),
-    };
-    let tmp = tempfile::Builder::new()
-        .prefix(".telltale-")
-        .suffix(".tmp")
-        .tempfile_in(&dir)
-        .map_err(|e| Error::io(&dir, e))?;
-    let (file, tmp_path) = tmp.into_parts();
-    let mut w = BufWriter::new(file);
-    write_rejects_to(&mut w, report, path)?;
-    let file = w.into_inner().map_err(|e| Error::io(path, e.into_error()))?;
-    file.sync_all().map_err(|e| Error::io(path, e))?;
-    tmp_path.persist(path).map_err(|e| Error::io(path, e.error))?;
-    Ok(())
+    crate::io::records::atomic_write(path, |w| write_rejects_to(w, report, path))
 }
 
 /// [`write_rejects`] to any writer; `name` labels errors.
