@@ -43,6 +43,7 @@ pub mod io;
 pub mod jobs;
 pub mod record;
 pub mod registry;
+pub mod report;
 pub mod time;
 
 pub use error::{Error, Result};

@@ -9,6 +9,7 @@ mod demo;
 mod evaluate;
 mod fit;
 mod import;
+mod report;
 mod scan;
 
 use crate::UsageError;
@@ -21,6 +22,7 @@ pub use demo::DemoArgs;
 pub use evaluate::EvaluateArgs;
 pub use fit::FitArgs;
 pub use import::ImportArgs;
+pub use report::ReportArgs;
 pub use scan::ScanArgs;
 
 /// telltale: tells a failing sensor from a real process change from a developing
@@ -58,6 +60,8 @@ pub enum Command {
     Backtest(BacktestArgs),
     /// Turn a work-order export (CSV) into failure and maintenance events; report unused rows
     ImportEvents(ImportArgs),
+    /// Write the weekly reliability review of [--from, --to): one self-contained HTML page, or Markdown
+    Report(ReportArgs),
 }
 
 /// Run the parsed command.
@@ -72,6 +76,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<()> {
         Command::Evaluate(args) => evaluate::run(&args),
         Command::Backtest(args) => backtest::run(&args),
         Command::ImportEvents(args) => import::run(&args),
+        Command::Report(args) => report::run(&args),
     }
 }
 
