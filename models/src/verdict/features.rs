@@ -7,7 +7,7 @@
 //! |-----------|----------------------|-------|
 //! | `level`   | median robust z of the rows with a value (each row against the baseline of its own regime) | robust σ of that baseline |
 //! | `resid`   | median regression residual z of the running rows that have been in their regime for [`SETTLE_MS`] (condition sensors with a regression) | residual σ |
-//! | `texture` | ln(trimmed mean of \|second differences\| in the block / the baseline's `rate_scale`): measurement noise, insensitive to a changing slope | — |
+//! | `texture` | ln(trimmed mean of \|second differences\| in the block / the baseline's `rate_scale`): measurement noise, insensitive to a changing slope; in a regime whose noise the instrument does not resolve ([`noise_resolved`]), only the part of each second difference beyond two resolution steps ([`dither_excess`]) | — |
 //! | `spikes`  | isolated outliers: rows that jump away from *both* neighbours by more than `spike_factor · rate_scale`, in the same direction | count |
 //! | `outside` | rows outside the instrument range | count |
 //! | `filled`  | rows with a value | count |
@@ -215,7 +215,11 @@ pub fn block_features(
                     continue;
                 }
                 if r + 1 < n && ok(r + 1) && scores.regime[r + 1] == Some(gb) {
-                    diffs.push(values[[r + 1, s]] - 2.0 * values[[r, s]] + values[[r - 1, s]]);
+                    let d2 = values[[r + 1, s]] - 2.0 * values[[r, s]] + values[[r - 1, s]];
+                    diffs.push(match baseline.baseline_for(s, gb) {
+                        Some(sb) if !noise_resolved(sb) => dither_excess(d2, sb.resolution),
+                        _ => d2,
+                    });
                 }
                 if r + 1 < n
                     && ok(r + 1)
@@ -261,6 +265,36 @@ pub fn block_features(
         }
     }
     out
+}
+
+/// Whether a regime baseline resolves the sensor's noise: its step-to-step
+/// scale (`rate_scale`) is above the floor set by the resolution alone
+/// (resolution / √12, the spread of rounding). At the floor the readings
+/// mostly repeat, and the second differences count how often a slow signal
+/// crosses a resolution step or dithers between two (how fast the signal
+/// moves, where it sits between two steps), not how noisy the instrument
+/// is. In such a regime `texture` counts only [`dither_excess`], in the
+/// held-out calibration and in the scan alike.
+pub fn noise_resolved(b: &crate::baseline::SensorBaseline) -> bool {
+    // the floor `floored_scale` gives differences (centred near 0)
+    let floor = match b.resolution {
+        Some(q) if q > 0.0 => (q / 12f64.sqrt()).max(1e-9),
+        _ => 1e-9,
+    };
+    b.rate_scale.is_some_and(|rate| rate > floor * (1.0 + 1e-9))
+}
+
+/// The part of a second difference `d2` beyond what rounding alone can
+/// make: readings dithering between two adjacent steps `q` apart give
+/// |d2| ≤ 2q, so `max(|d2| − 2q, 0)`; with no resolution known (the
+/// readings repeated exactly), all of |d2|. A reading that should repeat
+/// (a stopped machine's current) and starts to scatter shows up; one that
+/// only crosses or dithers between steps does not.
+pub fn dither_excess(d2: f64, resolution: Option<f64>) -> f64 {
+    match resolution {
+        Some(q) if q > 0.0 => (d2.abs() - 2.0 * q).max(0.0),
+        _ => d2.abs(),
+    }
 }
 
 /// Trimmed mean of |second differences| (the largest 10 % dropped, so a few
@@ -387,4 +421,56 @@ pub fn streaks(
         }
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::baseline::{ScaleMethod, SensorBaseline};
+
+    fn sb(rate_scale: Option<f64>, resolution: Option<f64>) -> SensorBaseline {
+        SensorBaseline {
+            n_good: 100,
+            location: 17.5,
+            scale: 3.7,
+            scale_method: ScaleMethod::Mad,
+            quantiles: [10.0, 15.0, 17.5, 20.0, 25.0],
+            resolution,
+            sampling_interval_ms: Some(60_000.0),
+            rate_scale,
+            phi: Some(0.99),
+            long_run_factor: 199.0,
+        }
+    }
+
+    #[test]
+    fn noise_is_resolved_only_above_the_rounding_floor() {
+        // rounding to a step q spreads readings uniformly over ±q/2: standard
+        // deviation q/√12 (Widrow 1956); a rate scale at that floor means the
+        // differences were mostly 0 (the fit fell back to the floor)
+        let q = 0.5;
+        let floor = q / 12f64.sqrt();
+        assert!(!noise_resolved(&sb(Some(floor), Some(q))));
+        assert!(!noise_resolved(&sb(Some(floor * (1.0 + 1e-12)), Some(q))));
+        assert!(noise_resolved(&sb(Some(floor * 1.01), Some(q))));
+        assert!(noise_resolved(&sb(Some(0.74), Some(q))));
+        // no resolution known: only the tiny numerical floor
+        assert!(!noise_resolved(&sb(Some(1e-9), None)));
+        assert!(noise_resolved(&sb(Some(1e-3), None)));
+        // no differences at all in the regime
+        assert!(!noise_resolved(&sb(None, Some(q))));
+    }
+
+    #[test]
+    fn dithering_between_two_steps_leaves_no_excess() {
+        // readings rounded to 0.5 alternating 17.5, 18.0, 17.5: d2 = -1.0 = -2q,
+        // the most rounding alone can give (hand computation)
+        let q = Some(0.5);
+        assert_eq!(dither_excess(17.5 - 2.0 * 18.0 + 17.5, q), 0.0);
+        assert_eq!(dither_excess(18.0 - 2.0 * 17.5 + 17.5, q), 0.0);
+        // a scatter of 2.5 units: |d2| = 2.5, excess 2.5 - 1.0 = 1.5
+        assert_eq!(dither_excess(1.0 - 2.0 * (-0.5) + 0.5, q), 1.5);
+        // no resolution known: every change counts
+        assert_eq!(dither_excess(-0.25, None), 0.25);
+    }
 }
