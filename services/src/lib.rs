@@ -10,6 +10,7 @@
 
 pub mod cli;
 pub mod logging;
+pub mod serve;
 
 /// A usage or input error: exit code 2, with a message that says what to fix.
 #[derive(Debug, thiserror::Error)]

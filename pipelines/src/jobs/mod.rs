@@ -46,7 +46,7 @@ pub use fit::{
     run_fit,
 };
 pub use naive::{NaiveSettings, run_naive};
-pub use scan::{ScanReport, ScanSettings, run_scan};
+pub use scan::{ScanReport, ScanSettings, run_scan, scan_asset};
 pub use store::{Manifest, ManifestEntry, Store, StoredBaseline, StoredRole, StoredSensor};
 pub use workorders::{
     DEFAULT_FAILURE_WORDS, DEFAULT_MAINTENANCE_WORDS, ImportReport, ImportSettings,

@@ -318,10 +318,7 @@ pub fn run_scan(settings: &ScanSettings) -> Result<ScanReport> {
         ));
     }
     let registry = settings.registry.as_ref().map(Registry::load).transpose()?;
-    let blk = p.block_ms;
-    let origin = (settings.from_ms - settings.warmup_ms.max(0)).div_euclid(blk) * blk;
-    let end = settings.to_ms.div_euclid(blk) * blk
-        + if settings.to_ms.rem_euclid(blk) == 0 { 0 } else { blk };
+    let (origin, end) = grid_span(settings);
     let reader = HistoryReader::try_new(&settings.history)?
         .with_time_range(origin, settings.to_ms)
         .with_skip_bad_files(settings.skip_bad_files);
@@ -408,6 +405,77 @@ pub fn run_scan(settings: &ScanSettings) -> Result<ScanReport> {
         rows_read: summary.rows_in_range,
         verdicts_before_fdr: before,
         bad_files: summary.bad_files,
+        seconds: started.elapsed().as_secs_f64(),
+    })
+}
+
+/// The evaluation grid of a scan: from `from − warm-up` down to a step
+/// boundary, to `to` up to one.
+fn grid_span(s: &ScanSettings) -> (i64, i64) {
+    let blk = s.params.block_ms;
+    let origin = (s.from_ms - s.warmup_ms.max(0)).div_euclid(blk) * blk;
+    let end = s.to_ms.div_euclid(blk) * blk + if s.to_ms.rem_euclid(blk) == 0 { 0 } else { blk };
+    (origin, end)
+}
+
+/// Judges one asset's readings held in memory against its stored baseline
+/// over `[from, to)` of `settings`, by the same evaluation, decision,
+/// fleet-wide FDR and ranking as [`run_scan`] on a history that holds only
+/// this asset (so no peers). `settings.history` and `settings.registry` are
+/// not read. For callers that receive readings rather than files (the HTTP
+/// service).
+///
+/// # Errors
+/// [`Error::BadInput`] for an empty span, bad settings, or a baseline that
+/// cannot judge (no calibration, another step length, alignment failure).
+pub fn scan_asset(
+    settings: &ScanSettings,
+    stored: StoredBaseline,
+    history: &AssetHistory,
+) -> Result<ScanReport> {
+    let started = Instant::now();
+    settings.params.validate().map_err(|m| Error::bad_input(&settings.store, m))?;
+    if settings.from_ms >= settings.to_ms {
+        return Err(Error::bad_input(&settings.store, "empty scan span: from is not before to"));
+    }
+    let (origin, end) = grid_span(settings);
+    // the batch reader keeps only rows in [origin, to); so does this
+    let inside = |t: &i64| (origin..settings.to_ms).contains(t);
+    let clipped;
+    let history = if history.sensors.iter().all(|s| s.ts_ms.iter().all(inside)) {
+        history
+    } else {
+        clipped = AssetHistory {
+            asset: history.asset.clone(),
+            sensors: history
+                .sensors
+                .iter()
+                .map(|s| {
+                    let keep: Vec<usize> = (0..s.len()).filter(|&i| inside(&s.ts_ms[i])).collect();
+                    crate::io::SensorSeries {
+                        sensor: s.sensor.clone(),
+                        ts_ms: keep.iter().map(|&i| s.ts_ms[i]).collect(),
+                        value: keep.iter().map(|&i| s.value[i]).collect(),
+                        good: keep.iter().map(|&i| s.good[i]).collect(),
+                    }
+                })
+                .collect(),
+        };
+        &clipped
+    };
+    let asset = stored.asset.clone();
+    let done = vec![
+        evaluate_one(settings, origin, end, stored, history)
+            .map_err(|m| Error::bad_input(&settings.store, format!("asset {asset:?}: {m}")))?,
+    ];
+    let (suspicions, before) = fleet_stage(settings, &done, origin);
+    Ok(ScanReport {
+        suspicions,
+        assets_scanned: 1,
+        assets_skipped: Vec::new(),
+        rows_read: history.rows() as u64,
+        verdicts_before_fdr: before,
+        bad_files: Vec::new(),
         seconds: started.elapsed().as_secs_f64(),
     })
 }

@@ -9,8 +9,10 @@ mod demo;
 mod evaluate;
 mod fit;
 mod import;
+mod keys;
 mod report;
 mod scan;
+mod serve;
 
 use crate::UsageError;
 use clap::{Parser, Subcommand};
@@ -22,8 +24,10 @@ pub use demo::DemoArgs;
 pub use evaluate::EvaluateArgs;
 pub use fit::FitArgs;
 pub use import::ImportArgs;
+pub use keys::{KeysAction, KeysArgs};
 pub use report::ReportArgs;
 pub use scan::ScanArgs;
+pub use serve::ServeArgs;
 
 /// telltale: tells a failing sensor from a real process change from a developing
 /// equipment fault, with evidence.
@@ -62,6 +66,10 @@ pub enum Command {
     ImportEvents(ImportArgs),
     /// Write the weekly reliability review of [--from, --to): one self-contained HTML page, or Markdown
     Report(ReportArgs),
+    /// Serve scoring, suspicions and feedback over HTTP (needs an API key, see `keys`)
+    Serve(ServeArgs),
+    /// Create, list and revoke the HTTP service's API keys
+    Keys(KeysArgs),
 }
 
 /// Run the parsed command.
@@ -76,6 +84,8 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<()> {
         Command::Evaluate(args) => evaluate::run(&args),
         Command::Backtest(args) => backtest::run(&args),
         Command::ImportEvents(args) => import::run(&args),
+        Command::Serve(args) => serve::run(&args),
+        Command::Keys(args) => keys::run(&args),
         Command::Report(args) => report::run(&args),
     }
 }

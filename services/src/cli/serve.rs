@@ -1,0 +1,128 @@
+//! `telltale serve`: the HTTP service over a baseline store and a SQLite
+//! database (see the `serve` module).
+
+use crate::UsageError;
+use crate::serve::db::Db;
+use crate::serve::window::WindowLimits;
+use crate::serve::{AppState, Limits, ServeConfig};
+use anyhow::Context;
+use clap::Args;
+use std::net::SocketAddr;
+use std::path::PathBuf;
+use std::time::Duration;
+use telltale_pipelines::jobs::Store;
+
+/// Arguments of `telltale serve`.
+///
+/// Refuses to start without an active API key (create one with `telltale
+/// keys add`) unless `--open` is given and the address is loopback.
+/// Exit status: 0 after a clean shutdown (ctrl-c or SIGTERM), 1 on a runtime
+/// failure, 2 for bad usage.
+#[derive(Debug, Args)]
+pub struct ServeArgs {
+    /// Baseline store written by `telltale fit`
+    #[arg(long)]
+    pub store: PathBuf,
+    /// SQLite database for suspicions, feedback and keys (default: STORE/telltale.db)
+    #[arg(long)]
+    pub db: Option<PathBuf>,
+    /// Address to listen on (port 0: any free port; the bound address is printed on stdout)
+    #[arg(long, default_value = "127.0.0.1:8467")]
+    pub listen: SocketAddr,
+    /// Serve without API keys; allowed only on a loopback address
+    #[arg(long)]
+    pub open: bool,
+    /// Largest request body, in MiB
+    #[arg(long, default_value_t = 16)]
+    pub max_body_mib: usize,
+    /// Most readings in one scoring request
+    #[arg(long, default_value_t = 200_000)]
+    pub max_readings: usize,
+    /// Longest window, in hours
+    #[arg(long, default_value_t = 168)]
+    pub max_span_hours: u32,
+    /// Longest time one request may take, in seconds
+    #[arg(long, default_value_t = 30)]
+    pub request_timeout_s: u64,
+}
+
+impl ServeArgs {
+    pub(crate) fn config(&self) -> Result<ServeConfig, UsageError> {
+        if !self.store.is_dir() {
+            return Err(UsageError(format!(
+                "--store {}: no such directory; run `telltale fit --store {}` first",
+                self.store.display(),
+                self.store.display()
+            )));
+        }
+        if self.open && !self.listen.ip().is_loopback() {
+            return Err(UsageError(format!(
+                "--open serves without keys and is allowed only on a loopback address, not {}; \
+                 drop --open and create a key with `telltale keys add`",
+                self.listen
+            )));
+        }
+        if self.max_body_mib == 0 || self.max_readings == 0 || self.max_span_hours == 0 {
+            return Err(UsageError(
+                "--max-body-mib, --max-readings and --max-span-hours must be at least 1".to_owned(),
+            ));
+        }
+        if self.request_timeout_s == 0 {
+            return Err(UsageError("--request-timeout-s must be at least 1".to_owned()));
+        }
+        let d = Limits::default();
+        let limits = Limits {
+            body_bytes: self.max_body_mib << 20,
+            window: WindowLimits {
+                max_readings: self.max_readings,
+                max_span_ms: i64::from(self.max_span_hours) * 3_600_000,
+                ..d.window
+            },
+            request_timeout: Duration::from_secs(self.request_timeout_s),
+            ..d
+        };
+        Ok(ServeConfig {
+            store: self.store.clone(),
+            db: db_path(self.db.as_ref(), &self.store),
+            listen: self.listen,
+            open: self.open,
+            limits,
+        })
+    }
+}
+
+/// The database path: `--db`, else `STORE/telltale.db`.
+pub(crate) fn db_path(db: Option<&PathBuf>, store: &std::path::Path) -> PathBuf {
+    db.cloned().unwrap_or_else(|| store.join("telltale.db"))
+}
+
+pub(crate) fn run(args: &ServeArgs) -> anyhow::Result<()> {
+    let cfg = args.config()?;
+    let store = Store::open(&cfg.store)?;
+    let db = Db::open(&cfg.db).with_context(|| format!("opening --db {}", cfg.db.display()))?;
+    if !cfg.open && db.active_keys()? == 0 {
+        return Err(UsageError(format!(
+            "{} holds no active API key; create one with `telltale keys add --db {} --scope write \
+             --name NAME`, or run with --open on a loopback address",
+            cfg.db.display(),
+            cfg.db.display()
+        ))
+        .into());
+    }
+    if cfg.open {
+        tracing::warn!("serving without API keys (--open): anyone on this machine can write");
+    }
+    let state = AppState::new(store, db, cfg.limits, cfg.open);
+    let workers = std::thread::available_parallelism().map_or(2, usize::from);
+    let rt = tokio::runtime::Builder::new_multi_thread()
+        .worker_threads(workers)
+        .max_blocking_threads(4 * workers)
+        .thread_name("telltale-serve")
+        .enable_all()
+        .build()
+        .context("starting the async runtime")?;
+    rt.block_on(crate::serve::serve(state, cfg.listen))
+        .with_context(|| format!("serving on --listen {}", cfg.listen))?;
+    tracing::info!("stopped");
+    Ok(())
+}

@@ -1,0 +1,639 @@
+//! End-to-end tests of `telltale serve` and `telltale keys` against the real
+//! binary on a loopback port: every endpoint, problem documents for bad
+//! input, key scopes, the same verdict over HTTP as from `telltale scan`,
+//! and no acknowledged record lost when the server is killed.
+#![allow(clippy::unwrap_used, reason = "test code: a panic is a failed test")]
+
+use assert_cmd::Command;
+use serde_json::{Value, json};
+use std::io::{BufRead, BufReader};
+use std::path::{Path, PathBuf};
+use std::process::{Child, Stdio};
+use std::sync::OnceLock;
+use telltale_pipelines::io::{AssetHistory, read_suspicions_from};
+use telltale_pipelines::io::{FileFormat, HistoryReader, HistoryWriter, HistoryWriterOptions};
+use telltale_pipelines::record::Suspicion;
+use telltale_pipelines::time::{format_time, from_millis, parse_time};
+
+fn telltale() -> Command {
+    Command::cargo_bin("telltale").unwrap()
+}
+
+/// The small demo fitted once for the whole file: (dir kept alive, history, store).
+struct Fixture {
+    _dir: tempfile::TempDir,
+    history: PathBuf,
+    store: PathBuf,
+}
+
+fn fixture() -> &'static Fixture {
+    static F: OnceLock<Fixture> = OnceLock::new();
+    F.get_or_init(|| {
+        let dir = tempfile::tempdir().unwrap();
+        let demo = dir.path().join("demo");
+        telltale()
+            .args(["-q", "demo", "--preset", "small", "--generate-only", "--out"])
+            .arg(&demo)
+            .assert()
+            .success();
+        let history = demo.join("history.parquet");
+        let store = dir.path().join("store");
+        telltale()
+            .args(["-q", "fit", "-j2", "--until", "2026-05-06", "--history"])
+            .arg(&history)
+            .arg("--fleet")
+            .arg(demo.join("fleet.toml"))
+            .arg("--store")
+            .arg(&store)
+            .assert()
+            .success();
+        Fixture { _dir: dir, history, store }
+    })
+}
+
+/// A running server; killed (SIGKILL) when dropped.
+struct Server {
+    child: Child,
+    base: String,
+}
+
+impl Server {
+    fn start(store: &Path, db: &Path, extra: &[&str]) -> Server {
+        let mut child = std::process::Command::new(assert_cmd::cargo::cargo_bin("telltale"))
+            .args(["-q", "serve", "--listen", "127.0.0.1:0", "--store"])
+            .arg(store)
+            .arg("--db")
+            .arg(db)
+            .args(extra)
+            .stdout(Stdio::piped())
+            .stderr(Stdio::inherit())
+            .spawn()
+            .unwrap();
+        let mut line = String::new();
+        BufReader::new(child.stdout.take().unwrap()).read_line(&mut line).unwrap();
+        let base = line
+            .trim()
+            .strip_prefix("listening on ")
+            .unwrap_or_else(|| panic!("no address line, got {line:?}"))
+            .to_owned();
+        Server { child, base }
+    }
+
+    fn url(&self, path: &str) -> String {
+        format!("{}{path}", self.base)
+    }
+}
+
+impl Drop for Server {
+    fn drop(&mut self) {
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
+}
+
+fn agent() -> ureq::Agent {
+    ureq::Agent::config_builder().http_status_as_error(false).build().into()
+}
+
+/// (status, content type, body as JSON or as a string).
+struct Resp {
+    status: u16,
+    media: String,
+    body: Value,
+    text: String,
+}
+
+fn finish(r: Result<ureq::http::Response<ureq::Body>, ureq::Error>) -> Resp {
+    let mut r = r.unwrap();
+    let status = r.status().as_u16();
+    let media =
+        r.headers().get("content-type").map(|v| v.to_str().unwrap().to_owned()).unwrap_or_default();
+    let text = r.body_mut().with_config().limit(256 << 20).read_to_string().unwrap();
+    let body = serde_json::from_str(&text).unwrap_or(Value::Null);
+    Resp { status, media, body, text }
+}
+
+fn get(url: &str, key: Option<&str>) -> Resp {
+    let mut req = agent().get(url);
+    if let Some(k) = key {
+        req = req.header("Authorization", &format!("Bearer {k}"));
+    }
+    finish(req.call())
+}
+
+fn post_raw(
+    url: &str,
+    key: Option<&str>,
+    media: &str,
+    body: &[u8],
+    extra: &[(&str, &str)],
+) -> Resp {
+    let mut req = agent().post(url).header("Content-Type", media);
+    if let Some(k) = key {
+        req = req.header("Authorization", &format!("Bearer {k}"));
+    }
+    for (h, v) in extra {
+        req = req.header(*h, *v);
+    }
+    finish(req.send(body))
+}
+
+fn post(url: &str, key: Option<&str>, body: &Value) -> Resp {
+    post_raw(url, key, "application/json", body.to_string().as_bytes(), &[])
+}
+
+/// A 4xx problem document naming `field` (when given).
+fn assert_problem(r: &Resp, status: u16, field: Option<&str>) {
+    assert_eq!(r.status, status, "{}", r.text);
+    assert_eq!(r.media, "application/problem+json", "{}", r.text);
+    for k in ["type", "title", "status", "detail", "instance"] {
+        assert!(!r.body[k].is_null(), "problem without {k}: {}", r.text);
+    }
+    assert_eq!(r.body["status"], status);
+    assert!(r.body["instance"].as_str().unwrap().starts_with('/'), "{}", r.text);
+    if let Some(f) = field {
+        assert_eq!(r.body["field"], f, "{}", r.text);
+    }
+}
+
+fn add_key(db: &Path, scope: &str) -> String {
+    let out = telltale()
+        .args(["keys", "add", "--scope", scope, "--name", &format!("test-{scope}"), "--db"])
+        .arg(db)
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    String::from_utf8(out).unwrap().trim().to_owned()
+}
+
+fn ms(s: &str) -> i64 {
+    parse_time(s).unwrap().timestamp_millis()
+}
+
+/// One asset's history in `[from_ms, to_ms)`.
+fn asset_history(history: &Path, asset: &str, from_ms: i64, to_ms: i64) -> AssetHistory {
+    let mut found = None;
+    HistoryReader::try_new(history)
+        .unwrap()
+        .with_time_range(from_ms, to_ms)
+        .for_each_asset(|h| {
+            if h.asset == asset {
+                found = Some(h);
+            }
+            Ok::<(), telltale_pipelines::Error>(())
+        })
+        .unwrap();
+    found.unwrap()
+}
+
+/// The window request for `h` over `[from, to)` (null for missing readings).
+fn window_json(h: &AssetHistory, from: &str, to: &str) -> Value {
+    let mut readings = Vec::new();
+    for s in &h.sensors {
+        assert!(s.good.iter().all(|g| *g), "the demo has no quality column");
+        for (t, v) in s.ts_ms.iter().zip(&s.value) {
+            let value = if v.is_nan() { Value::Null } else { json!(v) };
+            readings.push(
+                json!({"sensor": s.sensor, "ts": format_time(from_millis(*t)), "value": value}),
+            );
+        }
+    }
+    json!({"asset": h.asset, "from": from, "to": to, "readings": readings})
+}
+
+const FROM: &str = "2026-05-06T00:00:00Z";
+const TO: &str = "2026-05-09T00:00:00Z";
+const WARMUP_MS: i64 = 3 * 86_400_000;
+
+/// An asset the batch scan of the whole fleet suspects of a sensor fault
+/// (a verdict that does not hang on peers), with its window request.
+fn suspect_window() -> (String, AssetHistory, Value) {
+    static W: OnceLock<(String, AssetHistory, Value)> = OnceLock::new();
+    W.get_or_init(find_suspect_window).clone()
+}
+
+fn find_suspect_window() -> (String, AssetHistory, Value) {
+    let f = fixture();
+    let asset = fleet_scan()
+        .iter()
+        .find(|s| s.class.as_str() == "sensor_fault")
+        .expect("the small demo has a sensor fault in the span")
+        .asset
+        .clone();
+    let h = asset_history(&f.history, &asset, ms(FROM) - WARMUP_MS, ms(TO));
+    let body = window_json(&h, FROM, TO);
+    (asset, h, body)
+}
+
+/// The fleet's batch scan of `[FROM, TO)`: every suspicion, ranked.
+fn fleet_scan() -> Vec<Suspicion> {
+    let f = fixture();
+    let out = telltale()
+        .args(["-q", "scan", "-j2", "--from", FROM, "--to", TO, "--history"])
+        .arg(&f.history)
+        .arg("--store")
+        .arg(&f.store)
+        .assert()
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    read_suspicions_from(&out[..], FileFormat::Jsonl, Path::new("<stdout>")).unwrap()
+}
+
+#[test]
+fn a_window_scored_over_http_gets_the_verdicts_of_the_batch_scan() {
+    let f = fixture();
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("t.db");
+    let key = add_key(&db, "write");
+    let srv = Server::start(&f.store, &db, &[]);
+    // every asset the fleet scan suspects
+    let mut assets: Vec<String> = fleet_scan().into_iter().map(|s| s.asset).collect();
+    assets.sort();
+    assets.dedup();
+    let mut compared = Vec::new();
+    for asset in &assets {
+        let h = asset_history(&f.history, asset, ms(FROM) - WARMUP_MS, ms(TO));
+        // the same readings as a history file of that one asset, scanned in batch
+        let file = dir.path().join(format!("{asset}.parquet"));
+        let mut w = HistoryWriter::try_new(&file, HistoryWriterOptions::default()).unwrap();
+        for s in &h.sensors {
+            w.write_series(asset, &s.sensor, &s.ts_ms, &s.value).unwrap();
+        }
+        w.close().unwrap();
+        let out = telltale()
+            .args(["-q", "scan", "-j1", "--from", FROM, "--to", TO, "--history"])
+            .arg(&file)
+            .arg("--store")
+            .arg(&f.store)
+            .assert()
+            .success()
+            .get_output()
+            .stdout
+            .clone();
+        let batch: Vec<Suspicion> =
+            read_suspicions_from(&out[..], FileFormat::Jsonl, Path::new("<stdout>")).unwrap();
+        // ... and over HTTP
+        let body = window_json(&h, FROM, TO);
+        let r = post(&srv.url("/v1/windows/score"), Some(&key), &body);
+        assert_eq!(r.status, 200, "{}", r.text);
+        assert_eq!((r.body["from"].as_str(), r.body["to"].as_str()), (Some(FROM), Some(TO)));
+        assert_eq!(r.body["warnings"], json!([]), "{asset}");
+        let served: Vec<Suspicion> = r.body["suspicions"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| serde_json::from_value(v.clone()).unwrap())
+            .collect();
+        let key_of = |s: &Suspicion| {
+            (s.rank, s.id.clone(), s.class, s.mode, s.sensor.clone(), s.onset, s.detected)
+        };
+        assert_eq!(
+            served.iter().map(key_of).collect::<Vec<_>>(),
+            batch.iter().map(key_of).collect::<Vec<_>>(),
+            "{asset}"
+        );
+        for (a, b) in served.iter().zip(&batch) {
+            // same code, same inputs: equal up to the round trip of the printed floats
+            assert!(
+                (a.score - b.score).abs() <= 1e-12,
+                "{} score {} vs {}",
+                a.id,
+                a.score,
+                b.score
+            );
+            assert!((a.magnitude - b.magnitude).abs() <= 1e-9 * (1.0 + b.magnitude.abs()));
+            assert_eq!(a.evidence.len(), b.evidence.len());
+        }
+        compared.extend(batch.iter().map(|s| (s.class, s.mode)));
+        // re-scoring the same window updates the episodes, never duplicates them
+        let again = post(&srv.url("/v1/windows/score"), Some(&key), &body);
+        assert_eq!(again.status, 200);
+        let list = get(&srv.url(&format!("/v1/suspicions?asset={asset}&limit=500")), Some(&key));
+        assert_eq!(list.status, 200, "{}", list.text);
+        let items = list.body["items"].as_array().unwrap();
+        assert_eq!(items.len(), batch.len(), "{asset}");
+        assert!(items.iter().all(|s| s["times_scored"] == 2 && s["status"] == "open"));
+    }
+    eprintln!("compared {} suspicions on {} assets: {compared:?}", compared.len(), assets.len());
+    let mut classes: Vec<_> = compared.iter().map(|c| c.0).collect();
+    classes.sort_by_key(|c| c.as_str());
+    classes.dedup();
+    assert!(compared.len() >= 5 && classes.len() >= 2, "too little to compare: {compared:?}");
+}
+
+#[test]
+fn every_endpoint_answers_and_feedback_is_idempotent() {
+    let f = fixture();
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("t.db");
+    let write = add_key(&db, "write");
+    let read = add_key(&db, "read");
+    let srv = Server::start(&f.store, &db, &[]);
+    let (asset, _, body) = suspect_window();
+
+    let h = get(&srv.url("/healthz"), None);
+    assert_eq!((h.status, h.body["status"].as_str()), (200, Some("ok")));
+
+    let assets = get(&srv.url("/v1/assets"), Some(&read));
+    assert_eq!(assets.status, 200);
+    let ids: Vec<&str> = assets.body["items"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|a| a["asset"].as_str().unwrap())
+        .collect();
+    assert_eq!(ids.len(), 24, "the small demo has 24 pumps");
+    assert!(ids.contains(&asset.as_str()));
+    let b = get(&srv.url(&format!("/v1/assets/{asset}/baseline")), Some(&read));
+    assert_eq!((b.status, b.body["asset"].as_str()), (200, Some(asset.as_str())));
+    assert!(b.body["sensors"].as_array().is_some_and(|s| !s.is_empty()));
+    assert_problem(&get(&srv.url("/v1/assets/no-such-pump/baseline"), Some(&read)), 404, None);
+
+    let scored = post(&srv.url("/v1/windows/score"), Some(&write), &body);
+    assert_eq!(scored.status, 200, "{}", scored.text);
+    let first = scored.body["suspicions"][0].clone();
+    let id = first["id"].as_str().unwrap().to_owned();
+
+    // list: ranked, filtered, paged with a cursor
+    let all = get(&srv.url("/v1/suspicions?limit=500"), Some(&read));
+    let n = all.body["items"].as_array().unwrap().len();
+    assert!(n >= 1);
+    let mut paged = Vec::new();
+    let mut url = srv.url("/v1/suspicions?limit=1");
+    loop {
+        let p = get(&url, Some(&read));
+        assert_eq!(p.status, 200, "{}", p.text);
+        for it in p.body["items"].as_array().unwrap() {
+            paged.push((it["id"].as_str().unwrap().to_owned(), it["rank"].as_u64().unwrap()));
+        }
+        match p.body["next_cursor"].as_str() {
+            Some(c) => url = srv.url(&format!("/v1/suspicions?limit=1&cursor={c}")),
+            None => break,
+        }
+    }
+    let want: Vec<(String, u64)> = all.body["items"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|it| (it["id"].as_str().unwrap().to_owned(), it["rank"].as_u64().unwrap()))
+        .collect();
+    assert_eq!(paged, want);
+    assert_eq!(want.iter().map(|w| w.1).collect::<Vec<_>>(), (1..=n as u64).collect::<Vec<_>>());
+    let cls = first["class"].as_str().unwrap();
+    let by_class = get(&srv.url(&format!("/v1/suspicions?class={cls}&limit=500")), Some(&read));
+    assert!(by_class.body["items"].as_array().unwrap().iter().all(|s| s["class"] == cls));
+    let none = get(&srv.url("/v1/suspicions?from=2030-01-01"), Some(&read));
+    assert_eq!(none.body["items"], json!([]));
+
+    // feedback: new, repeated (no new row), keyed, conflicting key
+    let fb_url = srv.url(&format!("/v1/suspicions/{id}/feedback"));
+    let fb =
+        json!({"verdict": "confirmed", "note": "transmitter replaced", "work_order": "WO-4411"});
+    let r1 = post(&fb_url, Some(&write), &fb);
+    assert_eq!(r1.status, 201, "{}", r1.text);
+    assert_eq!(r1.body["replayed"], false);
+    let r2 = post(&fb_url, Some(&write), &fb);
+    assert_eq!((r2.status, &r2.body["replayed"]), (200, &json!(true)));
+    assert_eq!(r2.body["feedback"]["seq"], r1.body["feedback"]["seq"]);
+    let k = [("Idempotency-Key", "wo-4411-close")];
+    let d = json!({"verdict": "dismissed", "note": "duplicate of WO-4400"});
+    let r3 = post_raw(&fb_url, Some(&write), "application/json", d.to_string().as_bytes(), &k);
+    assert_eq!(r3.status, 201, "{}", r3.text);
+    let r4 = post_raw(&fb_url, Some(&write), "application/json", d.to_string().as_bytes(), &k);
+    assert_eq!(r4.status, 200);
+    let other = json!({"verdict": "dismissed", "note": "something else"});
+    let r5 = post_raw(&fb_url, Some(&write), "application/json", other.to_string().as_bytes(), &k);
+    assert_problem(&r5, 409, None);
+    let one = get(&srv.url(&format!("/v1/suspicions/{id}")), Some(&read));
+    assert_eq!(one.status, 200);
+    assert_eq!(one.body["status"], "dismissed");
+    let trail = one.body["feedback"].as_array().unwrap();
+    assert_eq!(trail.len(), 2, "{}", one.text);
+    assert_eq!(trail[0]["work_order"], "WO-4411");
+    assert!(trail.iter().all(|t| t["key_id"].as_str().is_some_and(|k| write.contains(k))));
+    assert!(!one.body["evidence"].as_array().unwrap().is_empty());
+    let dismissed = get(&srv.url("/v1/suspicions?status=dismissed"), Some(&read));
+    assert_eq!(dismissed.body["items"].as_array().unwrap().len(), 1);
+
+    // metrics: request counts by route pattern, windows and suspicions by class
+    let m = get(&srv.url("/metrics"), None);
+    assert_eq!(m.status, 200);
+    assert!(m.media.starts_with("text/plain"));
+    assert!(m.text.contains(
+        "telltale_http_requests_total{route=\"/v1/windows/score\",method=\"POST\",status=\"200\"} 1"
+    ), "{}", m.text);
+    assert!(m.text.contains("telltale_http_requests_total{route=\"/v1/suspicions/{id}/feedback\",method=\"POST\",status=\"409\"} 1"));
+    assert!(m.text.contains("telltale_windows_scored_total 1\n"));
+    assert!(m.text.contains(&format!("telltale_window_suspicions_total{{class=\"{cls}\"}}")));
+    assert!(m.text.contains(
+        "telltale_http_request_duration_seconds_bucket{route=\"/v1/assets\",le=\"+Inf\"} 1"
+    ));
+
+    // the OpenAPI document: 3.1, and every documented operation is served
+    let doc = get(&srv.url("/openapi.json"), None);
+    assert_eq!(doc.body["openapi"], "3.1.0");
+    let mut ops = 0;
+    for (path, methods) in doc.body["paths"].as_object().unwrap() {
+        let p = path.replace("{id}", if path.contains("assets") { &asset } else { &id });
+        for m in methods.as_object().unwrap().keys() {
+            ops += 1;
+            let r = match m.as_str() {
+                "get" => get(&srv.url(&p), Some(&write)),
+                "post" => post(&srv.url(&p), Some(&write), &json!({})),
+                other => panic!("unexpected method {other}"),
+            };
+            assert!(r.status != 404 && r.status != 405, "{m} {p}: {}", r.status);
+        }
+    }
+    assert_eq!(ops, 9);
+    // and a route it does not document is a problem 404
+    assert_problem(&get(&srv.url("/v1/nothing"), Some(&read)), 404, None);
+    assert_problem(&post(&srv.url("/v1/assets"), Some(&write), &json!({})), 405, None);
+}
+
+#[test]
+fn keys_are_required_and_scoped() {
+    let f = fixture();
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("t.db");
+    let write = add_key(&db, "write");
+    let read = add_key(&db, "read");
+    let srv = Server::start(&f.store, &db, &[]);
+    let score = srv.url("/v1/windows/score");
+    let fb = srv.url("/v1/suspicions/0123456789abcdef/feedback");
+    let w = json!({"asset": "x", "readings": [{"sensor": "s", "ts": FROM, "value": 1.0}]});
+    for url in [&score, &fb] {
+        assert_problem(&post(url, None, &w), 401, None);
+        assert_problem(&post(url, Some("tt_0000_wrong"), &w), 401, None);
+        assert_problem(&post(url, Some(&read), &w), 403, None);
+    }
+    assert_problem(&get(&srv.url("/v1/suspicions"), None), 401, None);
+    assert_eq!(get(&srv.url("/v1/suspicions"), Some(&read)).status, 200);
+    // a write key passes the check (and meets the unknown asset)
+    assert_problem(&post(&score, Some(&write), &w), 404, None);
+    // revoked keys stop working at once, on the running server
+    let id = read.split('_').nth(1).unwrap();
+    telltale().args(["keys", "revoke", id, "--db"]).arg(&db).assert().success();
+    assert_problem(&get(&srv.url("/v1/suspicions"), Some(&read)), 401, None);
+    let list = telltale().args(["keys", "list", "--db"]).arg(&db).assert().success();
+    let text = String::from_utf8(list.get_output().stdout.clone()).unwrap();
+    assert_eq!(text.lines().count(), 3, "{text}");
+    assert!(!text.contains(&write[12..]), "keys list must not print secrets");
+    telltale().args(["keys", "revoke", id, "--db"]).arg(&db).assert().code(2);
+}
+
+#[test]
+fn the_service_refuses_to_start_open_to_the_network_or_without_keys() {
+    let f = fixture();
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("t.db");
+    telltale()
+        .args(["serve", "--listen", "127.0.0.1:0", "--store"])
+        .arg(&f.store)
+        .arg("--db")
+        .arg(&db)
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("keys add"));
+    telltale()
+        .args(["serve", "--open", "--listen", "0.0.0.0:0", "--store"])
+        .arg(&f.store)
+        .arg("--db")
+        .arg(&db)
+        .assert()
+        .code(2)
+        .stderr(predicates::str::contains("loopback"));
+    // --open on loopback serves without a key
+    let srv = Server::start(&f.store, &db, &["--open"]);
+    assert_eq!(get(&srv.url("/v1/suspicions"), None).status, 200);
+}
+
+#[test]
+fn bad_windows_get_problem_documents_naming_the_field() {
+    let f = fixture();
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("t.db");
+    let key = add_key(&db, "write");
+    let srv = Server::start(&f.store, &db, &["--max-readings", "2000", "--max-body-mib", "1"]);
+    let url = srv.url("/v1/windows/score");
+    let (asset, h, _) = suspect_window();
+    let s0 = h.sensors[0].sensor.clone();
+    let rd = |ts: &str, v: Value| json!({"sensor": s0, "ts": ts, "value": v});
+    let win = |readings: Vec<Value>| json!({"asset": asset, "readings": readings});
+    let k = Some(key.as_str());
+    assert_problem(&post_raw(&url, k, "application/json", b"{not json", &[]), 400, Some("body"));
+    assert_problem(&post_raw(&url, k, "text/csv", b"a,b", &[]), 415, None);
+    let nan = win(vec![rd(FROM, json!("NaN"))]);
+    assert_problem(&post(&url, k, &nan), 422, Some("readings[0].value"));
+    let inf = post_raw(
+        &url,
+        k,
+        "application/json",
+        format!(
+            r#"{{"asset":"{asset}","readings":[{{"sensor":"{s0}","ts":"{FROM}","value":1e999}}]}}"#
+        )
+        .as_bytes(),
+        &[],
+    );
+    assert_problem(&inf, 400, Some("body"));
+    let dup = win(vec![rd(FROM, json!(1.0)), rd(FROM, json!(2.0))]);
+    assert_problem(&post(&url, k, &dup), 422, Some("readings[1].ts"));
+    let back = win(vec![rd("2026-05-06T01:00:00Z", json!(1.0)), rd(FROM, json!(2.0))]);
+    assert_problem(&post(&url, k, &back), 422, Some("readings[1].ts"));
+    let badtime = win(vec![rd("06/05/2026 10:00", json!(1.0))]);
+    assert_problem(&post(&url, k, &badtime), 422, Some("readings[0].ts"));
+    let long = win(vec![rd(FROM, json!(1.0)), rd("2026-05-20T00:00:00Z", json!(1.0))]);
+    assert_problem(&post(&url, k, &long), 422, Some("readings"));
+    let many: Vec<Value> =
+        (0..2001).map(|i| rd(&format_time(from_millis(ms(FROM) + i * 1000)), json!(1.0))).collect();
+    assert_problem(&post(&url, k, &win(many)), 422, Some("readings"));
+    let big = vec![b' '; 2 << 20];
+    assert_problem(&post_raw(&url, k, "application/json", &big, &[]), 413, None);
+    // unknown asset: 404 with the way to find the assets
+    let unknown = json!({"asset": "no-such-pump", "readings": [rd(FROM, json!(1.0))]});
+    let r = post(&url, k, &unknown);
+    assert_problem(&r, 404, None);
+    assert!(r.body["detail"].as_str().unwrap().contains("/v1/assets"), "{}", r.text);
+    // unknown sensor: scored, with a warning
+    let mut odd = win(vec![rd(FROM, json!(1.0))]);
+    odd["readings"]
+        .as_array_mut()
+        .unwrap()
+        .push(json!({"sensor": "made_up", "ts": FROM, "value": 3.0}));
+    let r = post(&url, k, &odd);
+    assert_eq!(r.status, 200, "{}", r.text);
+    let warnings: Vec<&str> =
+        r.body["warnings"].as_array().unwrap().iter().map(|w| w.as_str().unwrap()).collect();
+    assert!(
+        warnings.iter().any(|w| w.contains("\"made_up\"") && w.contains("not judged")),
+        "{warnings:?}"
+    );
+    // feedback and listing checks
+    let fb = srv.url("/v1/suspicions/0123456789abcdef/feedback");
+    assert_problem(&post(&fb, k, &json!({"verdict": "confirmed", "note": "x"})), 404, None);
+    assert_problem(&post(&fb, k, &json!({"verdict": "maybe", "note": "x"})), 422, Some("verdict"));
+    assert_problem(&post(&fb, k, &json!({"verdict": "confirmed"})), 422, Some("note"));
+    assert_problem(&get(&srv.url("/v1/suspicions?status=closed"), k), 422, Some("status"));
+    assert_problem(&get(&srv.url("/v1/suspicions?limit=0"), k), 422, Some("limit"));
+    assert_problem(&get(&srv.url("/v1/suspicions?cursor=zz"), k), 422, Some("cursor"));
+    assert_problem(&get(&srv.url("/v1/suspicions?from=yesterday"), k), 422, Some("from"));
+    assert_problem(&get(&srv.url("/v1/suspicions?sort=score"), k), 422, Some("sort"));
+    assert_problem(&get(&srv.url("/v1/suspicions/none"), k), 404, None);
+}
+
+#[test]
+fn acknowledged_records_survive_a_kill() {
+    let f = fixture();
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("t.db");
+    let key = add_key(&db, "write");
+    let (_, _, body) = suspect_window();
+    let mut srv = Server::start(&f.store, &db, &[]);
+    let scored = post(&srv.url("/v1/windows/score"), Some(&key), &body);
+    assert_eq!(scored.status, 200);
+    let ids: Vec<String> = scored.body["suspicions"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["id"].as_str().unwrap().to_owned())
+        .collect();
+    assert!(!ids.is_empty());
+    let fb = json!({"verdict": "process_change_accepted", "note": "new duty pump schedule", "work_order": "WO-77"});
+    let r = post(&srv.url(&format!("/v1/suspicions/{}/feedback", ids[0])), Some(&key), &fb);
+    assert_eq!(r.status, 201);
+    // SIGKILL right after the acknowledgements: no shutdown, no flush
+    srv.child.kill().unwrap();
+    srv.child.wait().unwrap();
+    let srv = Server::start(&f.store, &db, &[]);
+    for id in &ids {
+        let one = get(&srv.url(&format!("/v1/suspicions/{id}")), Some(&key));
+        assert_eq!(one.status, 200, "{id} lost: {}", one.text);
+    }
+    let one = get(&srv.url(&format!("/v1/suspicions/{}", ids[0])), Some(&key));
+    assert_eq!(one.body["status"], "process_change_accepted");
+    assert_eq!(one.body["feedback"][0]["work_order"], "WO-77");
+    assert_eq!(one.body["feedback"][0]["seq"], r.body["feedback"]["seq"]);
+}
+
+#[test]
+fn sigterm_finishes_the_request_in_flight_and_exits_cleanly() {
+    let f = fixture();
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("t.db");
+    let key = add_key(&db, "write");
+    let (_, _, body) = suspect_window();
+    let mut srv = Server::start(&f.store, &db, &[]);
+    let url = srv.url("/v1/windows/score");
+    let k = key.clone();
+    let inflight = std::thread::spawn(move || post(&url, Some(&k), &body).status);
+    std::thread::sleep(std::time::Duration::from_millis(200));
+    let pid = srv.child.id().to_string();
+    std::process::Command::new("kill").args(["-TERM", &pid]).status().unwrap();
+    assert_eq!(inflight.join().unwrap(), 200);
+    let status = srv.child.wait().unwrap();
+    assert!(status.success(), "exit after SIGTERM: {status:?}");
+}
