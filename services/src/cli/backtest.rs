@@ -204,8 +204,8 @@ fn print_summary(out: &mut impl Write, r: &BacktestReport) -> std::io::Result<()
     let q = &r.quiet;
     writeln!(
         out,
-        "quiet time (>= {} d before and {} d after any failure, outside maintenance): {} \
-         suspicions over {:.1} asset-weeks = {} per 100 asset-weeks",
+        "quiet time (not within {} d before or {} d after a failure, outside maintenance and \
+         outages): {} suspicions over {:.1} asset-weeks = {} per 100 asset-weeks",
         s.quiet_before_days,
         s.quiet_after_days,
         q.suspicions,
