@@ -306,7 +306,10 @@ pub fn write_events(path: impl AsRef<Path>, events: &[Event]) -> Result<()> {
 
 /// Write through a temporary file in the same directory, renamed over `path`
 /// only when complete, so an existing file is never left half-written.
-pub(crate) fn atomic_write(path: &Path, write: impl FnOnce(&mut BufWriter<File>) -> Result<()>) -> Result<()> {
+pub(crate) fn atomic_write(
+    path: &Path,
+    write: impl FnOnce(&mut BufWriter<File>) -> Result<()>,
+) -> Result<()> {
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
         _ => std::path::PathBuf::from("."),
