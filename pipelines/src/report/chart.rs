@@ -385,7 +385,8 @@ pub(crate) fn xy_svg(
         let root = SVGBackend::with_string(&mut buf, size).into_drawing_area();
         let mut chart = ChartBuilder::on(&root)
             .margin(8)
-            .margin_right(20)
+            // room for the label of the rightmost point
+            .margin_right(120)
             .x_label_area_size(34)
             .y_label_area_size(54)
             .build_cartesian_2d(x0..x1 + xp, y0..y1 + yp)

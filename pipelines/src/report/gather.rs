@@ -170,7 +170,7 @@ pub struct RegimeShare {
 pub struct TimeInBand {
     /// The band `[lo, hi]`, sensor units.
     pub band: [f64; 2],
-    /// Share of the grid rows with a value that are inside it, 0..1.
+    /// Share of the running (not stopped) grid rows with a value that are inside it, 0..1.
     pub share: f64,
 }
 
@@ -189,7 +189,7 @@ pub struct SensorQuality {
     pub out_of_range: u64,
     /// Suspicions of mode `stuck` this period.
     pub stuck: usize,
-    /// Time in the registered normal band, where one is given.
+    /// Time in the registered normal band, where one is given and the asset ran.
     pub in_band: Option<TimeInBand>,
 }
 
@@ -429,9 +429,16 @@ fn gather_asset(
                 })
                 .count() as u64
         });
-        let in_band = st.band.map(|[lo, hi]| {
-            let inside = col.iter().filter(|&&v| v.is_finite() && v >= lo && v <= hi).count();
-            TimeInBand { band: [lo, hi], share: inside as f64 / with_value.max(1) as f64 }
+        // the normal band is for the running machine: stopped rows are left out
+        let in_band = st.band.and_then(|[lo, hi]| {
+            let running = col
+                .iter()
+                .zip(&regimes)
+                .filter(|&(v, g)| v.is_finite() && g.is_some_and(|g| g != STOPPED));
+            let (n_run, inside) = running.fold((0usize, 0usize), |(n, k), (&v, _)| {
+                (n + 1, k + usize::from(v >= lo && v <= hi))
+            });
+            (n_run > 0).then(|| TimeInBand { band: [lo, hi], share: inside as f64 / n_run as f64 })
         });
         sensors.push(SensorQuality {
             sensor: st.id.clone(),

@@ -75,6 +75,20 @@ fn when(t: chrono::DateTime<chrono::Utc>) -> String {
     t.format("%Y-%m-%d %H:%M").to_string()
 }
 
+/// Three significant digits, no exponent for everyday magnitudes.
+fn sig3(x: f64) -> String {
+    let a = x.abs();
+    if a >= 100.0 || a == 0.0 {
+        format!("{x:.0}")
+    } else if a >= 10.0 {
+        format!("{x:.1}")
+    } else if a >= 1.0 {
+        format!("{x:.2}")
+    } else {
+        format!("{x:.3}")
+    }
+}
+
 fn pct(x: f64) -> String {
     format!("{:.0} %", 100.0 * x)
 }
@@ -399,7 +413,7 @@ fn assets_table(out: &mut String, r: &Report) {
     out.push_str(
         "<section id=\"assets\"><h2>Per asset</h2><p class=\"tt-note\">Regime shares are of the \
          period's grid rows. Time in band is the share of rows with a reading inside the \
-         registry's normal band. Gaps are runs of at least 3 grid rows without a reading; out of \
+         registry's normal band, over the rows the asset ran (not stopped). Gaps are runs of at least 3 grid rows without a reading; out of \
          range counts readings outside the instrument range; stuck names sensors the scan found \
          stuck.</p><table class=\"tt-assets\"><thead><tr><th>Asset</th><th>Group · site</th>\
          <th class=\"num\">Coverage</th><th>Operating regimes</th><th>Time in band</th>\
@@ -411,22 +425,48 @@ fn assets_table(out: &mut String, r: &Report) {
             .iter()
             .map(|g| {
                 let ctx: Vec<String> =
-                    g.context.iter().map(|(s, m)| format!("{} {m:.0}", esc(s))).collect();
+                    g.context.iter().map(|(s, m)| format!("{} {}", esc(s), sig3(*m))).collect();
                 if ctx.is_empty() {
-                    format!("{} {}", g.regime, pct(g.share))
+                    format!("<b>{}</b> {}", g.regime, pct(g.share))
                 } else {
-                    format!("{} {} ({})", g.regime, pct(g.share), ctx.join(", "))
+                    format!(
+                        "<b>{}</b> {} <small>({})</small>",
+                        g.regime,
+                        pct(g.share),
+                        ctx.join(", ")
+                    )
                 }
             })
             .collect();
-        let band: Vec<String> = a
-            .sensors
+        // in band: the sensors below 99.5 % by name, the rest in one phrase
+        let with_band: Vec<_> =
+            a.sensors.iter().filter_map(|q| q.in_band.map(|b| (&q.sensor, b.share))).collect();
+        let low: Vec<String> = with_band
             .iter()
-            .filter_map(|q| q.in_band.map(|b| format!("{} {}", esc(&q.sensor), pct(b.share))))
+            .filter(|(_, x)| *x < 0.995)
+            .map(|(s, x)| format!("{} {}", esc(s), pct(*x)))
             .collect();
+        let band = match (with_band.len(), low.len()) {
+            (0, _) => "—".to_owned(),
+            (n, 0) => format!("all {n} banded sensors ≥ 99.5 %"),
+            (n, k) if k == n => low.join("<br>"),
+            (_, _) => format!("{}<br>others ≥ 99.5 %", low.join("<br>")),
+        };
         let mut quality: Vec<String> = Vec::new();
+        // a gap every sensor shares is the asset being offline: said once
+        let shared_gap = a.sensors.len() > 1
+            && a.sensors[0].gaps > 0
+            && a.sensors
+                .iter()
+                .all(|q| q.gaps == a.sensors[0].gaps && q.gap_hours == a.sensors[0].gap_hours);
+        if shared_gap {
+            quality.push(format!(
+                "all sensors: {} gap(s), {:.1} h (asset silent)",
+                a.sensors[0].gaps, a.sensors[0].gap_hours
+            ));
+        }
         for q in &a.sensors {
-            if q.gaps > 0 {
+            if q.gaps > 0 && !shared_gap {
                 quality.push(format!(
                     "{}: {} gap(s), {:.1} h",
                     esc(&q.sensor),
@@ -450,7 +490,7 @@ fn assets_table(out: &mut String, r: &Report) {
             site = a.site.as_deref().map_or(String::new(), |s| format!(" · {}", esc(s))),
             cov = pct(a.coverage),
             regimes = regimes.join("<br>"),
-            band = if band.is_empty() { "—".to_owned() } else { band.join("<br>") },
+            band = band,
             quality =
                 if quality.is_empty() { "no findings".to_owned() } else { quality.join("<br>") },
             n = a.suspicions,
@@ -503,26 +543,39 @@ fn backtest_section(out: &mut String, r: &Report) -> Result<(), ChartError> {
         out.push_str(&marks.join(" · "));
         out.push_str("</p>");
     }
-    // sensitivity curve: suspicions against the FDR level, labelled with the warned failures
+    // sensitivity curve: what is caught (recall over labelled changes, else
+    // failures warned) against the alarm rate, one point per FDR level; the
+    // ends and the default level are labelled, the table below has them all
+    let use_recall = rep.sweep.iter().any(|p| p.recall.is_some());
+    let last = rep.sweep.len().saturating_sub(1);
     let pts: Vec<(f64, f64, String)> = rep
         .sweep
         .iter()
-        .map(|p| {
+        .enumerate()
+        .map(|(i, p)| {
             let x = p.quiet_per_100_asset_weeks.or(p.false_alarms_per_100_asset_weeks);
-            (
-                x.unwrap_or(f64::NAN),
-                p.failures_warned as f64,
-                format!("q={:.0e}{}", p.fdr_q, if p.default { " (default)" } else { "" }),
-            )
+            let y = if use_recall {
+                p.recall.map_or(f64::NAN, |r| 100.0 * r)
+            } else {
+                p.failures_warned as f64
+            };
+            let label = if p.default {
+                format!("q={:.0e} (default)", p.fdr_q)
+            } else if i == 0 || i == last {
+                format!("q={:.0e}", p.fdr_q)
+            } else {
+                String::new()
+            };
+            (x.unwrap_or(f64::NAN), y, label)
         })
         .collect();
-    if pts.iter().any(|p| p.0.is_finite()) {
+    if pts.iter().any(|p| p.0.is_finite() && p.1.is_finite()) {
         out.push_str("<h3>Sensitivity</h3><div class=\"tt-sweep\">");
         out.push_str(&xy_svg(
             "sensitivity curve",
             &pts,
             "suspicions per 100 asset-weeks of quiet time",
-            "failures warned",
+            if use_recall { "recall over labelled changes, %" } else { "failures warned" },
             (760, 300),
             true,
         )?);
