@@ -551,7 +551,7 @@ fn bad_windows_get_problem_documents_naming_the_field() {
     let many: Vec<Value> =
         (0..2001).map(|i| rd(&format_time(from_millis(ms(FROM) + i * 1000)), json!(1.0))).collect();
     assert_problem(&post(&url, k, &win(many)), 422, Some("readings"));
-    let big = vec![b' '; 2 << 20];
+    let big = vec![b' '; 3 << 20];
     assert_problem(&post_raw(&url, k, "application/json", &big, &[]), 413, None);
     // unknown asset: 404 with the way to find the assets
     let unknown = json!({"asset": "no-such-pump", "readings": [rd(FROM, json!(1.0))]});
@@ -636,4 +636,237 @@ fn sigterm_finishes_the_request_in_flight_and_exits_cleanly() {
     assert_eq!(inflight.join().unwrap(), 200);
     let status = srv.child.wait().unwrap();
     assert!(status.success(), "exit after SIGTERM: {status:?}");
+}
+
+/// `h` as an Arrow IPC stream of sensor (Utf8), ts (ms, UTC) and value, in
+/// batches of `batch` rows; `nan_at` puts a NaN in that row.
+fn arrow_stream(h: &AssetHistory, batch: usize, nan_at: Option<usize>) -> Vec<u8> {
+    use arrow_array::{
+        ArrayRef, Float64Array, RecordBatch, StringArray, TimestampMillisecondArray,
+    };
+    use arrow_schema::{DataType, Field, Schema, TimeUnit};
+    use std::sync::Arc;
+    let mut rows: Vec<(String, i64, Option<f64>)> = Vec::new();
+    for s in &h.sensors {
+        for (t, v) in s.ts_ms.iter().zip(&s.value) {
+            rows.push((s.sensor.clone(), *t, (!v.is_nan()).then_some(*v)));
+        }
+    }
+    if let Some(i) = nan_at {
+        rows[i].2 = Some(f64::NAN);
+    }
+    let schema = Arc::new(Schema::new(vec![
+        Field::new("sensor", DataType::Utf8, false),
+        Field::new("ts", DataType::Timestamp(TimeUnit::Millisecond, Some("UTC".into())), false),
+        Field::new("value", DataType::Float64, true),
+    ]));
+    let mut out = Vec::new();
+    let mut w = arrow_ipc::writer::StreamWriter::try_new(&mut out, &schema).unwrap();
+    for chunk in rows.chunks(batch) {
+        let cols: Vec<ArrayRef> = vec![
+            Arc::new(StringArray::from_iter_values(chunk.iter().map(|r| r.0.as_str()))),
+            Arc::new(
+                TimestampMillisecondArray::from_iter_values(chunk.iter().map(|r| r.1))
+                    .with_timezone("UTC"),
+            ),
+            Arc::new(Float64Array::from_iter(chunk.iter().map(|r| r.2))),
+        ];
+        w.write(&RecordBatch::try_new(schema.clone(), cols).unwrap()).unwrap();
+    }
+    w.finish().unwrap();
+    drop(w);
+    out
+}
+
+#[test]
+fn an_arrow_window_scores_like_the_same_json_window() {
+    let f = fixture();
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("t.db");
+    let key = add_key(&db, "write");
+    let srv = Server::start(&f.store, &db, &[]);
+    let (asset, h, body) = suspect_window();
+    let k = Some(key.as_str());
+    let json_r = post(&srv.url("/v1/windows/score"), k, &body);
+    assert_eq!(json_r.status, 200, "{}", json_r.text);
+    let url = srv.url(&format!("/v1/windows/score?asset={asset}&from={FROM}&to={TO}"));
+    let media = "application/vnd.apache.arrow.stream";
+    let arrow_r = post_raw(&url, k, media, &arrow_stream(&h, 1000, None), &[]);
+    assert_eq!(arrow_r.status, 200, "{}", arrow_r.text);
+    let pick = |r: &Resp| -> Vec<(String, String, String, f64)> {
+        r.body["suspicions"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|s| {
+                (
+                    s["id"].as_str().unwrap().to_owned(),
+                    s["class"].as_str().unwrap().to_owned(),
+                    s["onset"].as_str().unwrap().to_owned(),
+                    s["score"].as_f64().unwrap(),
+                )
+            })
+            .collect()
+    };
+    assert!(!pick(&json_r).is_empty());
+    assert_eq!(pick(&arrow_r), pick(&json_r));
+    assert_eq!(arrow_r.body["readings"], json_r.body["readings"]);
+    // bad streams: not Arrow, a NaN, no asset, a JSON window with query parameters
+    assert_problem(&post_raw(&url, k, media, b"not arrow", &[]), 400, Some("body"));
+    let r = post_raw(&url, k, media, &arrow_stream(&h, 1000, Some(1500)), &[]);
+    assert_problem(&r, 422, Some("rows[1500].value"));
+    let no_asset = srv.url("/v1/windows/score");
+    assert_problem(
+        &post_raw(&no_asset, k, media, &arrow_stream(&h, 1000, None), &[]),
+        422,
+        Some("asset"),
+    );
+    let json_q = srv.url(&format!("/v1/windows/score?asset={asset}"));
+    assert_problem(&post(&json_q, k, &body), 422, Some("asset"));
+}
+
+/// One request the test receiver got: (status it answered, headers, body).
+type Delivery = (u16, std::collections::HashMap<String, String>, String);
+
+/// A minimal HTTP receiver on `listener`: answers 500 to the first
+/// `fail_first` requests, 200 after, and logs every request.
+fn receiver(
+    listener: std::net::TcpListener,
+    fail_first: usize,
+) -> std::sync::Arc<std::sync::Mutex<Vec<Delivery>>> {
+    use std::io::{Read, Write};
+    let log = std::sync::Arc::new(std::sync::Mutex::new(Vec::<Delivery>::new()));
+    let l2 = log.clone();
+    std::thread::spawn(move || {
+        for stream in listener.incoming() {
+            let Ok(mut s) = stream else { continue };
+            let mut buf = Vec::new();
+            let mut chunk = [0u8; 4096];
+            let head_end = loop {
+                let n = s.read(&mut chunk).unwrap_or(0);
+                if n == 0 {
+                    break None;
+                }
+                buf.extend_from_slice(&chunk[..n]);
+                if let Some(i) = buf.windows(4).position(|w| w == b"\r\n\r\n") {
+                    break Some(i + 4);
+                }
+            };
+            let Some(head_end) = head_end else { continue };
+            let head = String::from_utf8_lossy(&buf[..head_end]).to_string();
+            let headers: std::collections::HashMap<String, String> = head
+                .lines()
+                .skip(1)
+                .filter_map(|l| l.split_once(':'))
+                .map(|(k, v)| (k.trim().to_ascii_lowercase(), v.trim().to_owned()))
+                .collect();
+            let len: usize =
+                headers.get("content-length").and_then(|v| v.parse().ok()).unwrap_or(0);
+            while buf.len() < head_end + len {
+                let n = s.read(&mut chunk).unwrap_or(0);
+                if n == 0 {
+                    break;
+                }
+                buf.extend_from_slice(&chunk[..n]);
+            }
+            let body = String::from_utf8_lossy(&buf[head_end..]).to_string();
+            let mut log = l2.lock().unwrap();
+            let status = if log.len() < fail_first { 500 } else { 200 };
+            log.push((status, headers, body));
+            drop(log);
+            let _ =
+                write!(s, "HTTP/1.1 {status} X\r\nContent-Length: 0\r\nConnection: close\r\n\r\n");
+        }
+    });
+    log
+}
+
+fn wait_for(what: &str, mut done: impl FnMut() -> bool) {
+    let t0 = std::time::Instant::now();
+    while !done() {
+        assert!(t0.elapsed() < std::time::Duration::from_secs(30), "timed out waiting for {what}");
+        std::thread::sleep(std::time::Duration::from_millis(50));
+    }
+}
+
+#[test]
+fn webhook_deliveries_are_signed_retried_and_neither_lost_nor_repeated_across_restarts() {
+    use hmac::{Hmac, Mac};
+    let f = fixture();
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("t.db");
+    let key = add_key(&db, "write");
+    let secret = "pump-station-7f3a9c-shared";
+    let secret_file = dir.path().join("hook.secret");
+    std::fs::write(&secret_file, format!("{secret}\n")).unwrap();
+    // the receiver's port, not listening yet: the first deliveries fail
+    let port = std::net::TcpListener::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port();
+    let url = format!("http://127.0.0.1:{port}/hooks/telltale");
+    let sf = secret_file.to_str().unwrap().to_owned();
+    let args = [
+        "--webhook-url",
+        url.as_str(),
+        "--webhook-secret-file",
+        sf.as_str(),
+        "--webhook-min-score",
+        "0",
+        "--webhook-retry-ms",
+        "100",
+    ];
+    let mut srv = Server::start(&f.store, &db, &args);
+    let (_, _, body) = suspect_window();
+    let r = post(&srv.url("/v1/windows/score"), Some(&key), &body);
+    assert_eq!(r.status, 200);
+    let mut ids: Vec<String> = r.body["suspicions"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["id"].as_str().unwrap().to_owned())
+        .collect();
+    ids.sort();
+    assert!(!ids.is_empty());
+    // killed while the receiver is down: the notifications wait in the outbox
+    std::thread::sleep(std::time::Duration::from_millis(300));
+    srv.child.kill().unwrap();
+    srv.child.wait().unwrap();
+    let log = receiver(std::net::TcpListener::bind(("127.0.0.1", port)).unwrap(), 1);
+    let srv = Server::start(&f.store, &db, &args);
+    let ok = |log: &std::sync::Mutex<Vec<Delivery>>| {
+        log.lock().unwrap().iter().filter(|d| d.0 == 200).count()
+    };
+    wait_for("every delivery", || ok(&log) >= ids.len());
+    let got = log.lock().unwrap().clone();
+    // the first answer was a 500: that delivery was retried with the same key
+    assert_eq!(got[0].0, 500);
+    let first_key = &got[0].1["idempotency-key"];
+    assert!(got[1..].iter().any(|d| d.0 == 200 && &d.1["idempotency-key"] == first_key));
+    let mut delivered: Vec<String> = Vec::new();
+    for (status, h, b) in &got {
+        // the signature checked with an independent HMAC implementation (the hmac crate)
+        let mut mac = Hmac::<sha2::Sha256>::new_from_slice(secret.as_bytes()).unwrap();
+        mac.update(format!("{}.{b}", h["x-telltale-timestamp"]).as_bytes());
+        let want: String = mac.finalize().into_bytes().iter().map(|x| format!("{x:02x}")).collect();
+        assert_eq!(h["x-telltale-signature"], format!("sha256={want}"));
+        assert_eq!(h["content-type"], "application/json");
+        let v: Value = serde_json::from_str(b).unwrap();
+        assert_eq!(v["event"], "new");
+        assert_eq!(v["idempotency_key"].as_str(), Some(h["idempotency-key"].as_str()));
+        assert_eq!(h["idempotency-key"], format!("{}:new", v["suspicion"]["id"].as_str().unwrap()));
+        if *status == 200 {
+            delivered.push(v["suspicion"]["id"].as_str().unwrap().to_owned());
+        }
+    }
+    delivered.sort();
+    assert_eq!(delivered, ids, "each suspicion delivered exactly once");
+    let m = get(&srv.url("/metrics"), None);
+    assert!(
+        m.text.contains(&format!("telltale_webhook_outbox{{state=\"delivered\"}} {}", ids.len()))
+    );
+    // re-scoring the same window notifies nothing new; a restart re-sends nothing
+    let again = post(&srv.url("/v1/windows/score"), Some(&key), &body);
+    assert_eq!(again.status, 200);
+    drop(srv);
+    let _srv = Server::start(&f.store, &db, &args);
+    std::thread::sleep(std::time::Duration::from_millis(1500));
+    assert_eq!(log.lock().unwrap().len(), got.len(), "nothing sent twice");
 }

@@ -3,6 +3,7 @@
 
 use crate::UsageError;
 use crate::serve::db::Db;
+use crate::serve::webhook::WebhookConfig;
 use crate::serve::window::WindowLimits;
 use crate::serve::{AppState, Limits, ServeConfig};
 use anyhow::Context;
@@ -44,6 +45,18 @@ pub struct ServeArgs {
     /// Longest time one request may take, in seconds
     #[arg(long, default_value_t = 30)]
     pub request_timeout_s: u64,
+    /// Post new and escalated suspicions to this http:// URL (signed; see --webhook-secret-file)
+    #[arg(long, value_name = "URL")]
+    pub webhook_url: Option<String>,
+    /// File holding the webhook's shared secret (the HMAC-SHA256 key); needed with --webhook-url
+    #[arg(long, value_name = "FILE")]
+    pub webhook_secret_file: Option<PathBuf>,
+    /// Notify suspicions whose score reaches this (0..1)
+    #[arg(long, default_value_t = 0.5)]
+    pub webhook_min_score: f64,
+    /// First retry delay after a failed delivery, in milliseconds (doubles per attempt, at most 10 min)
+    #[arg(long, default_value_t = 1000)]
+    pub webhook_retry_ms: u64,
 }
 
 impl ServeArgs {
@@ -81,7 +94,51 @@ impl ServeArgs {
             request_timeout: Duration::from_secs(self.request_timeout_s),
             ..d
         };
+        let webhook = match (&self.webhook_url, &self.webhook_secret_file) {
+            (None, None) => None,
+            (None, Some(_)) => {
+                return Err(UsageError("--webhook-secret-file needs --webhook-url".to_owned()));
+            }
+            (Some(_), None) => {
+                return Err(UsageError(
+                    "--webhook-url needs --webhook-secret-file, the file with the signing secret"
+                        .to_owned(),
+                ));
+            }
+            (Some(url), Some(file)) => {
+                if !url.starts_with("http://") {
+                    return Err(UsageError(format!(
+                        "--webhook-url {url}: only http:// is supported (this build has no TLS); \
+                         reach an https:// endpoint through a local relay"
+                    )));
+                }
+                let secret = std::fs::read(file).map_err(|e| {
+                    UsageError(format!("--webhook-secret-file {}: {e}", file.display()))
+                })?;
+                let secret = secret.trim_ascii().to_vec();
+                if secret.len() < 16 {
+                    return Err(UsageError(format!(
+                        "--webhook-secret-file {}: the secret has {} bytes; use at least 16",
+                        file.display(),
+                        secret.len()
+                    )));
+                }
+                if !(0.0..=1.0).contains(&self.webhook_min_score) {
+                    return Err(UsageError(format!(
+                        "--webhook-min-score {} is not in 0..1",
+                        self.webhook_min_score
+                    )));
+                }
+                Some(WebhookConfig {
+                    url: url.clone(),
+                    secret,
+                    min_score: self.webhook_min_score,
+                    retry_base: Duration::from_millis(self.webhook_retry_ms.max(1)),
+                })
+            }
+        };
         Ok(ServeConfig {
+            webhook,
             store: self.store.clone(),
             db: db_path(self.db.as_ref(), &self.store),
             listen: self.listen,
@@ -112,7 +169,8 @@ pub(crate) fn run(args: &ServeArgs) -> anyhow::Result<()> {
     if cfg.open {
         tracing::warn!("serving without API keys (--open): anyone on this machine can write");
     }
-    let state = AppState::new(store, db, cfg.limits, cfg.open);
+    let notify_at = cfg.webhook.as_ref().map(|w| w.min_score);
+    let state = AppState::new(store, db, cfg.limits, cfg.open, notify_at);
     let workers = std::thread::available_parallelism().map_or(2, usize::from);
     let rt = tokio::runtime::Builder::new_multi_thread()
         .worker_threads(workers)
@@ -121,7 +179,7 @@ pub(crate) fn run(args: &ServeArgs) -> anyhow::Result<()> {
         .enable_all()
         .build()
         .context("starting the async runtime")?;
-    rt.block_on(crate::serve::serve(state, cfg.listen))
+    rt.block_on(crate::serve::serve(state, cfg.listen, cfg.webhook.clone()))
         .with_context(|| format!("serving on --listen {}", cfg.listen))?;
     tracing::info!("stopped");
     Ok(())

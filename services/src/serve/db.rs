@@ -96,6 +96,20 @@ pub const MIGRATIONS: &[&str] = &[
         idempotency_key TEXT UNIQUE
     );
     CREATE INDEX feedback_suspicion ON feedback (suspicion_id, seq);",
+    // 2: the webhook outbox
+    "CREATE TABLE outbox (
+        seq INTEGER PRIMARY KEY AUTOINCREMENT,
+        idempotency_key TEXT NOT NULL UNIQUE,
+        suspicion_id TEXT NOT NULL,
+        event TEXT NOT NULL CHECK (event IN ('new', 'escalated')),
+        body TEXT NOT NULL,
+        created TEXT NOT NULL,
+        attempts INTEGER NOT NULL DEFAULT 0,
+        next_attempt_ms INTEGER NOT NULL,
+        last_error TEXT,
+        delivered TEXT
+    );
+    CREATE INDEX outbox_due ON outbox (delivered, next_attempt_ms);",
 ];
 
 /// Errors of the database.
@@ -219,6 +233,19 @@ pub struct FeedbackRecord {
     pub work_order: Option<String>,
     /// Idempotency key, if one was sent.
     pub idempotency_key: Option<String>,
+}
+
+/// One webhook delivery waiting in the outbox.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct OutboxItem {
+    /// Row number.
+    pub seq: i64,
+    /// `SUSPICION_ID:EVENT`, sent as the `Idempotency-Key` header.
+    pub idempotency_key: String,
+    /// The JSON body.
+    pub body: String,
+    /// Attempts so far.
+    pub attempts: i64,
 }
 
 /// New feedback.
@@ -520,6 +547,10 @@ impl Db {
     /// Stores one scored window and merges its suspicions (with their
     /// ranking priorities) into the episodes, in one transaction committed
     /// before returning. Returns the stored suspicions in the given order.
+    /// With `notify_at`, a suspicion first stored with a score at or above
+    /// it (`new`), or stored before below it and now at or above it
+    /// (`escalated`), gets a webhook row in the outbox, in the same
+    /// transaction; the idempotency key `ID:EVENT` keeps it to one row.
     ///
     /// # Errors
     /// [`DbError::Sqlite`].
@@ -527,6 +558,7 @@ impl Db {
         &self,
         w: &WindowRecord,
         found: &[(Suspicion, f64)],
+        notify_at: Option<f64>,
     ) -> Result<Vec<StoredSuspicion>, DbError> {
         let now = now_text();
         let mut c = lock(&self.writer);
@@ -547,18 +579,42 @@ impl Db {
         )
         .map_err(|e| self.err(e))?;
         for (s, priority) in found {
-            let old: Option<i64> = tx
-                .query_row("SELECT detected_ms FROM suspicions WHERE id = ?1", [&s.id], |r| {
-                    r.get(0)
-                })
+            let old: Option<(i64, f64)> = tx
+                .query_row(
+                    "SELECT detected_ms, score FROM suspicions WHERE id = ?1",
+                    [&s.id],
+                    |r| Ok((r.get(0)?, r.get(1)?)),
+                )
                 .optional()
                 .map_err(|e| self.err(e))?;
             let mut rec = s.clone();
             rec.rank = 0;
             let detected_ms = match old {
-                Some(d) if d < rec.detected.timestamp_millis() => d,
+                Some((d, _)) if d < rec.detected.timestamp_millis() => d,
                 _ => rec.detected.timestamp_millis(),
             };
+            // the outbox row commits with the suspicion or not at all
+            let event = match (notify_at, old) {
+                (Some(level), None) if rec.score >= level => Some("new"),
+                (Some(level), Some((_, was))) if was < level && rec.score >= level => {
+                    Some("escalated")
+                }
+                _ => None,
+            };
+            if let Some(event) = event {
+                let key = format!("{}:{event}", rec.id);
+                let body = serde_json::json!({
+                    "event": event,
+                    "idempotency_key": key,
+                    "suspicion": &rec,
+                });
+                tx.execute(
+                    "INSERT OR IGNORE INTO outbox (idempotency_key, suspicion_id, event, body,
+                         created, next_attempt_ms) VALUES (?1, ?2, ?3, ?4, ?5, 0)",
+                    params![key, rec.id, event, body.to_string(), now],
+                )
+                .map_err(|e| self.err(e))?;
+            }
             rec.detected = from_millis(detected_ms);
             let json = serde_json::to_string(&rec)
                 .map_err(|e| self.err(rusqlite::Error::ToSqlConversionFailure(Box::new(e))))?;
@@ -810,6 +866,68 @@ impl Db {
         rows.collect::<rusqlite::Result<Vec<_>>>().map_err(|e| self.err(e))
     }
 
+    /// Undelivered outbox rows due at `now_ms`, oldest first.
+    ///
+    /// # Errors
+    /// [`DbError::Sqlite`].
+    pub fn due_outbox(&self, now_ms: i64, limit: usize) -> Result<Vec<OutboxItem>, DbError> {
+        let c = lock(&self.reader);
+        let mut st = c
+            .prepare(
+                "SELECT seq, idempotency_key, body, attempts FROM outbox
+                 WHERE delivered IS NULL AND next_attempt_ms <= ?1 ORDER BY seq LIMIT ?2",
+            )
+            .map_err(|e| self.err(e))?;
+        let rows = st
+            .query_map(params![now_ms, limit as i64], |r| {
+                Ok(OutboxItem {
+                    seq: r.get(0)?,
+                    idempotency_key: r.get(1)?,
+                    body: r.get(2)?,
+                    attempts: r.get(3)?,
+                })
+            })
+            .map_err(|e| self.err(e))?;
+        rows.collect::<rusqlite::Result<Vec<_>>>().map_err(|e| self.err(e))
+    }
+
+    /// Records one delivery attempt of outbox row `seq`: delivered, or
+    /// failed with `error` and due again at `retry_at_ms`.
+    ///
+    /// # Errors
+    /// [`DbError::Sqlite`].
+    pub fn outbox_attempt(&self, seq: i64, result: Result<(), (&str, i64)>) -> Result<(), DbError> {
+        let c = lock(&self.writer);
+        let r = match result {
+            Ok(()) => c.execute(
+                "UPDATE outbox SET attempts = attempts + 1, delivered = ?2, last_error = NULL
+                 WHERE seq = ?1",
+                params![seq, now_text()],
+            ),
+            Err((error, retry_at_ms)) => c.execute(
+                "UPDATE outbox SET attempts = attempts + 1, last_error = ?2, next_attempt_ms = ?3
+                 WHERE seq = ?1",
+                params![seq, error, retry_at_ms],
+            ),
+        };
+        r.map(|_| ()).map_err(|e| self.err(e))
+    }
+
+    /// Outbox rows (pending, delivered), for the metrics.
+    ///
+    /// # Errors
+    /// [`DbError::Sqlite`].
+    pub fn outbox_counts(&self) -> Result<(i64, i64), DbError> {
+        lock(&self.reader)
+            .query_row(
+                "SELECT COALESCE(SUM(delivered IS NULL), 0), COALESCE(SUM(delivered IS NOT NULL), 0)
+                 FROM outbox",
+                [],
+                |r| Ok((r.get(0)?, r.get(1)?)),
+            )
+            .map_err(|e| self.err(e))
+    }
+
     /// Stored suspicions by (class, status), for the metrics.
     ///
     /// # Errors
@@ -904,11 +1022,11 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let db = Db::open(dir.path().join("t.db")).unwrap();
         let a = sus("p1", 1_000, 5_000, 0.5);
-        db.record_window(&window("p1"), &[(a.clone(), 0.4)]).unwrap();
+        db.record_window(&window("p1"), &[(a.clone(), 0.4)], None).unwrap();
         let mut again = a.clone();
         again.detected = from_millis(9_000);
         again.score = 0.9;
-        let got = db.record_window(&window("p1"), &[(again, 0.7)]).unwrap();
+        let got = db.record_window(&window("p1"), &[(again, 0.7)], None).unwrap();
         assert_eq!(got.len(), 1);
         assert_eq!(got[0].times_scored, 2);
         assert_eq!(got[0].record.score, 0.9);
@@ -928,7 +1046,7 @@ mod tests {
                 (sus(&format!("p{i}"), i * 1000, i * 1000 + 10, 0.5), f64::from((i % 3) as i32))
             })
             .collect();
-        db.record_window(&window("p"), &found).unwrap();
+        db.record_window(&window("p"), &found, None).unwrap();
         let all = db.list(&Filter::default(), None, 100).unwrap().items;
         let mut seen = Vec::new();
         let mut cursor = None;
@@ -953,7 +1071,7 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let db = Db::open(dir.path().join("t.db")).unwrap();
         let a = sus("p1", 1_000, 5_000, 0.5);
-        db.record_window(&window("p1"), &[(a.clone(), 0.4)]).unwrap();
+        db.record_window(&window("p1"), &[(a.clone(), 0.4)], None).unwrap();
         let fb = NewFeedback {
             verdict: "confirmed".into(),
             note: "bearing noise on site".into(),

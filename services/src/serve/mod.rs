@@ -16,15 +16,17 @@
 //! document is generated from the same table ([`openapi`]), so the two
 //! cannot drift apart.
 
+pub mod arrow;
 pub mod db;
 pub mod error;
 pub mod metrics;
 mod openapi;
+pub mod webhook;
 pub mod window;
 
 pub use openapi::openapi;
 
-use axum::body::Body;
+use axum::body::{Body, HttpBody};
 use axum::extract::{MatchedPath, Path as UrlPath, Query, Request, State};
 use axum::http::{HeaderMap, HeaderValue, Method, StatusCode, header};
 use axum::middleware::{self, Next};
@@ -82,6 +84,7 @@ struct Shared {
     limits: Limits,
     metrics: Metrics,
     open: bool,
+    notify_at: Option<f64>,
     baselines: Mutex<HashMap<String, (SystemTime, Arc<StoredBaseline>)>>,
 }
 
@@ -94,7 +97,8 @@ pub struct AppState {
 impl AppState {
     /// State over a baseline store and an opened database. `open`: no key
     /// is needed (the caller checks that the address is loopback).
-    pub fn new(store: Store, db: Db, limits: Limits, open: bool) -> Self {
+    /// `notify_at`: the webhook's score level, if one is configured.
+    pub fn new(store: Store, db: Db, limits: Limits, open: bool, notify_at: Option<f64>) -> Self {
         AppState {
             inner: Arc::new(Shared {
                 store,
@@ -102,6 +106,7 @@ impl AppState {
                 limits,
                 metrics: Metrics::default(),
                 open,
+                notify_at,
                 baselines: Mutex::new(HashMap::new()),
             }),
         }
@@ -168,8 +173,12 @@ pub static ROUTES: &[RouteSpec] = &[
         scope: Some(Scope::Write),
         operation_id: "scoreWindow",
         summary: "Score one asset's readings for a window; returns and stores its suspicions",
-        query: &[],
-        body: Some((&["application/json"], "Window")),
+        query: &[
+            ("asset", "string", "Arrow bodies only: the asset of the readings"),
+            ("from", "string", "Arrow bodies only: start of the window (RFC 3339)"),
+            ("to", "string", "Arrow bodies only: end of the window, exclusive (RFC 3339)"),
+        ],
+        body: Some((&["application/json", ARROW_STREAM], "Window")),
         ok: &[(200, "application/json", "ScoreResult")],
         errors: &[400, 401, 403, 404, 413, 415, 422, 503],
         make: || post(score_window),
@@ -475,12 +484,33 @@ async fn read_body(
         )));
     }
     let limit = state.inner.limits.body_bytes;
-    let bytes = axum::body::to_bytes(body, limit).await.map_err(|_| {
-        ApiError::TooLarge(format!(
+    // Past the limit the rest is read and dropped (up to four times the
+    // limit), so that a client that sends its whole body before reading the
+    // answer gets the 413 rather than a reset connection.
+    let mut body = body;
+    let mut buf = Vec::new();
+    let mut total = 0usize;
+    while let Some(frame) =
+        std::future::poll_fn(|cx| std::pin::Pin::new(&mut body).poll_frame(cx)).await
+    {
+        let frame = frame.map_err(|e| {
+            ApiError::bad_request("body", format!("the body could not be read ({e})"))
+        })?;
+        if let Ok(data) = frame.into_data() {
+            total = total.saturating_add(data.len());
+            if total <= limit {
+                buf.extend_from_slice(&data);
+            } else if total > limit.saturating_mul(4) {
+                break;
+            }
+        }
+    }
+    if total > limit {
+        return Err(ApiError::TooLarge(format!(
             "the body is larger than the limit of {limit} bytes; split the window"
-        ))
-    })?;
-    Ok((bytes.to_vec(), ct))
+        )));
+    }
+    Ok((buf, ct))
 }
 
 fn history_of(w: &Window, stored: &StoredBaseline) -> (AssetHistory, Vec<String>, Vec<String>) {
@@ -519,14 +549,37 @@ fn history_of(w: &Window, stored: &StoredBaseline) -> (AssetHistory, Vec<String>
 async fn score_window(
     State(state): State<AppState>,
     axum::Extension(caller): axum::Extension<Caller>,
+    Query(q): Query<HashMap<String, String>>,
     headers: HeaderMap,
     body: Body,
 ) -> Result<Response, ApiError> {
-    let (bytes, _ct) = read_body(&state, &headers, body, &["application/json"]).await?;
+    let (bytes, ct) =
+        read_body(&state, &headers, body, &["application/json", ARROW_STREAM]).await?;
+    let arrow = ct == ARROW_STREAM;
+    if let Some(k) = q.keys().find(|k| !arrow || !["asset", "from", "to"].contains(&k.as_str())) {
+        return Err(ApiError::invalid(
+            k.as_str(),
+            if arrow {
+                format!("unknown parameter {k:?}; an Arrow window takes asset, from and to")
+            } else {
+                format!("parameter {k:?}: a JSON window carries asset, from and to in its body")
+            },
+        ));
+    }
     let st = state.clone();
     let out = blocking(move || {
         let lim = st.inner.limits.window;
-        let w = window::parse_json(&bytes, &lim)?;
+        let w = if arrow {
+            let asset = q.get("asset").filter(|a| !a.is_empty()).cloned().ok_or_else(|| {
+                ApiError::invalid("asset", "an Arrow window needs ?asset=ID in the query string")
+            })?;
+            let t = |k: &str| {
+                q.get(k).map(|v| window::time_field(&Value::String(v.clone()), k)).transpose()
+            };
+            arrow::parse_arrow(&bytes, asset, t("from")?, t("to")?, &lim)?
+        } else {
+            window::parse_json(&bytes, &lim)?
+        };
         let Some(stored) = st.baseline(&w.asset)? else {
             return Err(ApiError::NotFound {
                 what: "asset",
@@ -554,7 +607,8 @@ async fn score_window(
             readings: w.readings,
             key_id: caller.key_id.clone(),
         };
-        let mut saved = st.db().record_window(&rec, &found).map_err(db_error)?;
+        let mut saved =
+            st.db().record_window(&rec, &found, st.inner.notify_at).map_err(db_error)?;
         for (s, r) in saved.iter_mut().zip(&report.suspicions) {
             s.record.rank = r.rank;
         }
@@ -809,8 +863,18 @@ async fn healthz(State(state): State<AppState>) -> Result<Response, ApiError> {
 
 async fn metrics_text(State(state): State<AppState>) -> Result<Response, ApiError> {
     let st = state.clone();
-    let stored = blocking(move || st.db().counts().map_err(db_error)).await?;
-    let text = state.inner.metrics.render(&stored);
+    let (stored, outbox) = blocking(move || {
+        Ok((st.db().counts().map_err(db_error)?, st.db().outbox_counts().map_err(db_error)?))
+    })
+    .await?;
+    let mut text = state.inner.metrics.render(&stored);
+    if state.inner.notify_at.is_some() {
+        use std::fmt::Write;
+        let _ = writeln!(text, "# HELP telltale_webhook_outbox Webhook deliveries by state.");
+        let _ = writeln!(text, "# TYPE telltale_webhook_outbox gauge");
+        let _ = writeln!(text, "telltale_webhook_outbox{{state=\"pending\"}} {}", outbox.0);
+        let _ = writeln!(text, "telltale_webhook_outbox{{state=\"delivered\"}} {}", outbox.1);
+    }
     let mut r = text.into_response();
     r.headers_mut()
         .insert(header::CONTENT_TYPE, HeaderValue::from_static("text/plain; version=0.0.4"));
@@ -834,6 +898,8 @@ pub struct ServeConfig {
     pub open: bool,
     /// Limits.
     pub limits: Limits,
+    /// Outbound notification.
+    pub webhook: Option<webhook::WebhookConfig>,
 }
 
 /// Waits for ctrl-c or SIGTERM.
@@ -861,8 +927,15 @@ async fn shutdown_signal() {
 ///
 /// # Errors
 /// The address cannot be bound.
-pub async fn serve(state: AppState, listen: std::net::SocketAddr) -> std::io::Result<()> {
+pub async fn serve(
+    state: AppState,
+    listen: std::net::SocketAddr,
+    hook: Option<webhook::WebhookConfig>,
+) -> std::io::Result<()> {
     use std::io::Write;
+    if let Some(cfg) = hook {
+        webhook::spawn_worker(state.clone(), cfg)?;
+    }
     let listener = tokio::net::TcpListener::bind(listen).await?;
     let addr = listener.local_addr()?;
     {

@@ -213,10 +213,14 @@ pub fn openapi() -> Value {
             let content: Map<String, Value> = media
                 .iter()
                 .map(|m| {
-                    (
-                        (*m).to_owned(),
-                        json!({"schema": {"$ref": format!("#/components/schemas/{schema}")}}),
-                    )
+                    let s = if *m == super::ARROW_STREAM {
+                        json!({"type": "string", "contentMediaType": super::ARROW_STREAM,
+                               "description": "record batches with columns sensor, ts, value \
+                                               [, quality]; asset, from and to in the query"})
+                    } else {
+                        json!({"$ref": format!("#/components/schemas/{schema}")})
+                    };
+                    ((*m).to_owned(), json!({ "schema": s }))
                 })
                 .collect();
             op["requestBody"] = json!({"required": true, "content": content});

@@ -58,7 +58,7 @@ pub struct Window {
     pub readings: usize,
 }
 
-fn time_field(v: &Value, field: &str) -> Result<i64, ApiError> {
+pub(crate) fn time_field(v: &Value, field: &str) -> Result<i64, ApiError> {
     let s = v.as_str().ok_or_else(|| {
         ApiError::invalid(field, format!("{field} must be an RFC 3339 time string, got {v}"))
     })?;
@@ -159,7 +159,7 @@ pub fn parse_json(body: &[u8], lim: &WindowLimits) -> Result<Window, ApiError> {
             ),
         ));
     }
-    let mut sensors: BTreeMap<String, (SensorReadings, usize)> = BTreeMap::new();
+    let mut c = Collector::default();
     for (i, r) in readings.iter().enumerate() {
         let at = |f: &str| format!("readings[{i}].{f}");
         let o = r.as_object().ok_or_else(|| {
@@ -218,26 +218,53 @@ pub fn parse_json(body: &[u8], lim: &WindowLimits) -> Result<Window, ApiError> {
             }
         };
         let good = quality(o.get("quality"), &at("quality"))?;
-        let (s, last) =
-            sensors.entry(sensor.to_owned()).or_insert_with(|| (SensorReadings::default(), i));
+        c.push(i, "readings", sensor, ts, value, good)?;
+    }
+    c.finish(asset, from, to, lim)
+}
+
+/// Readings gathered by sensor, checked as they come.
+#[derive(Debug, Default)]
+pub(crate) struct Collector {
+    sensors: BTreeMap<String, (SensorReadings, usize)>,
+    n: usize,
+}
+
+impl Collector {
+    /// Adds reading `i` (of the list named `list`: `readings` in JSON, `rows` in Arrow).
+    pub(crate) fn push(
+        &mut self,
+        i: usize,
+        list: &str,
+        sensor: &str,
+        ts: i64,
+        value: f64,
+        good: bool,
+    ) -> Result<(), ApiError> {
+        let at = format!("{list}[{i}].ts");
+        let (s, last) = match self.sensors.get_mut(sensor) {
+            Some(e) => e,
+            None => self
+                .sensors
+                .entry(sensor.to_owned())
+                .or_insert_with(|| (SensorReadings::default(), i)),
+        };
         if let Some(&prev) = s.ts_ms.last() {
             if ts == prev {
                 return Err(ApiError::invalid(
-                    at("ts"),
+                    &at,
                     format!(
-                        "{}: sensor {sensor:?} already has a reading at this time (readings[{last}]); \
-                         send one reading per sensor and time",
-                        at("ts")
+                        "{at}: sensor {sensor:?} already has a reading at this time ({list}[{last}]); \
+                         send one reading per sensor and time"
                     ),
                 ));
             }
             if ts < prev {
                 return Err(ApiError::invalid(
-                    at("ts"),
+                    &at,
                     format!(
-                        "{}: sensor {sensor:?} goes back in time after readings[{last}]; send each \
-                         sensor's readings in increasing time",
-                        at("ts")
+                        "{at}: sensor {sensor:?} goes back in time after {list}[{last}]; send each \
+                         sensor's readings in increasing time"
                     ),
                 ));
             }
@@ -246,52 +273,66 @@ pub fn parse_json(body: &[u8], lim: &WindowLimits) -> Result<Window, ApiError> {
         s.value.push(value);
         s.good.push(good);
         *last = i;
+        self.n += 1;
+        Ok(())
     }
-    let first = sensors.values().filter_map(|(s, _)| s.ts_ms.first()).min().copied().unwrap_or(0);
-    let last = sensors.values().filter_map(|(s, _)| s.ts_ms.last()).max().copied().unwrap_or(0);
-    let from_ms = from.unwrap_or(first);
-    let to_ms = to.unwrap_or(last + 1);
-    if from_ms >= to_ms {
-        return Err(ApiError::invalid(
-            "to",
-            "to must be after from; the window [from, to) would be empty",
-        ));
+
+    /// Checks the span and returns the window.
+    pub(crate) fn finish(
+        self,
+        asset: String,
+        from: Option<i64>,
+        to: Option<i64>,
+        lim: &WindowLimits,
+    ) -> Result<Window, ApiError> {
+        let sensors = self.sensors;
+        let first =
+            sensors.values().filter_map(|(s, _)| s.ts_ms.first()).min().copied().unwrap_or(0);
+        let last = sensors.values().filter_map(|(s, _)| s.ts_ms.last()).max().copied().unwrap_or(0);
+        let from_ms = from.unwrap_or(first);
+        let to_ms = to.unwrap_or(last + 1);
+        if from_ms >= to_ms {
+            return Err(ApiError::invalid(
+                "to",
+                "to must be after from; the window [from, to) would be empty",
+            ));
+        }
+        let hours = |ms: i64| ms as f64 / 3_600_000.0;
+        if to_ms - from_ms > lim.max_span_ms || last - first > lim.max_span_ms {
+            return Err(ApiError::invalid(
+                if last - first > lim.max_span_ms { "readings" } else { "to" },
+                format!(
+                    "the window spans {:.1} h, more than the limit of {:.1} h; split it",
+                    hours((to_ms - from_ms).max(last - first)),
+                    hours(lim.max_span_ms)
+                ),
+            ));
+        }
+        if last >= to_ms {
+            return Err(ApiError::invalid(
+                "to",
+                "readings at or after to; move to past the last reading or leave it out",
+            ));
+        }
+        if first < from_ms - lim.warmup_ms {
+            return Err(ApiError::invalid(
+                "from",
+                format!(
+                    "readings start {:.1} h before from, more than the warm-up of {:.1} h; move \
+                     from earlier or send fewer old readings",
+                    hours(from_ms - first),
+                    hours(lim.warmup_ms)
+                ),
+            ));
+        }
+        Ok(Window {
+            asset,
+            from_ms,
+            to_ms,
+            sensors: sensors.into_iter().map(|(k, (s, _))| (k, s)).collect(),
+            readings: self.n,
+        })
     }
-    let hours = |ms: i64| ms as f64 / 3_600_000.0;
-    if to_ms - from_ms > lim.max_span_ms || last - first > lim.max_span_ms {
-        return Err(ApiError::invalid(
-            if last - first > lim.max_span_ms { "readings" } else { "to" },
-            format!(
-                "the window spans {:.1} h, more than the limit of {:.1} h; split it",
-                hours((to_ms - from_ms).max(last - first)),
-                hours(lim.max_span_ms)
-            ),
-        ));
-    }
-    if last >= to_ms {
-        return Err(ApiError::invalid(
-            "to",
-            "readings at or after to; move to past the last reading or leave it out",
-        ));
-    }
-    if first < from_ms - lim.warmup_ms {
-        return Err(ApiError::invalid(
-            "from",
-            format!(
-                "readings start {:.1} h before from, more than the warm-up of {:.1} h; move from \
-                 earlier or send fewer old readings",
-                hours(from_ms - first),
-                hours(lim.warmup_ms)
-            ),
-        ));
-    }
-    Ok(Window {
-        asset,
-        from_ms,
-        to_ms,
-        sensors: sensors.into_iter().map(|(k, (s, _))| (k, s)).collect(),
-        readings: readings.len(),
-    })
 }
 
 #[cfg(test)]
