@@ -83,7 +83,8 @@ pub enum Status {
     /// of this period.
     Continuing,
     /// Raised last period only, and its sensors are back inside their baseline band over
-    /// the last day of this period (at least 90 % of judged rows).
+    /// the last day of this period (at least 90 % of judged rows; an asset-level
+    /// suspicion: every sensor of the asset).
     Closed,
 }
 
@@ -281,6 +282,34 @@ pub struct Report {
 /// The key under which two periods' suspicions are "the same kind".
 fn kind(s: &Suspicion) -> (String, Option<String>, Class, Mode) {
     (s.asset.clone(), s.sensor.clone(), s.class, s.mode)
+}
+
+/// Least share of the last day's judged rows inside the baseline band for a
+/// last-period suspicion to count as closed (common practice, no source).
+const CLOSED_IN_BAND: f64 = 0.9;
+
+/// The status of each current suspicion, and of each previous one not
+/// raised again (its index in `previous` with its status); see [`Status`].
+/// `back_in_band` says whether a previous suspicion's sensors sat inside
+/// their band at the end of the current period.
+fn statuses(
+    current: &[Suspicion],
+    previous: &[Suspicion],
+    back_in_band: impl Fn(&Suspicion) -> bool,
+) -> (Vec<Status>, Vec<(usize, Status)>) {
+    let prev_kinds: BTreeSet<_> = previous.iter().map(kind).collect();
+    let cur_kinds: BTreeSet<_> = current.iter().map(kind).collect();
+    let now = current
+        .iter()
+        .map(|s| if prev_kinds.contains(&kind(s)) { Status::Continuing } else { Status::New })
+        .collect();
+    let before = previous
+        .iter()
+        .enumerate()
+        .filter(|(_, s)| !cur_kinds.contains(&kind(s)))
+        .map(|(k, s)| (k, if back_in_band(s) { Status::Closed } else { Status::Continuing }))
+        .collect();
+    (now, before)
 }
 
 /// What one asset's pass gives.
@@ -742,36 +771,30 @@ pub fn run_report(settings: &ReportSettings) -> Result<Report> {
     }
 
     // new / continuing / closed
-    let prev_kinds: BTreeSet<_> = previous.suspicions.iter().map(kind).collect();
-    let cur_kinds: BTreeSet<_> = current.suspicions.iter().map(kind).collect();
+    let back_in_band = |s: &Suspicion| {
+        index.get(s.asset.as_str()).is_none_or(|&i| {
+            let g = &gathered[i];
+            let shares: Vec<Option<f64>> = match &s.sensor {
+                Some(id) => vec![g.last_day_in_band.get(id).copied().flatten()],
+                None => g.last_day_in_band.values().copied().collect(),
+            };
+            shares.iter().flatten().all(|&x| x >= CLOSED_IN_BAND)
+        })
+    };
+    let (now, before) = statuses(&current.suspicions, &previous.suspicions, back_in_band);
     let items: Vec<Item> = current
         .suspicions
         .iter()
-        .map(|s| Item {
+        .zip(now)
+        .map(|(s, status)| Item {
             suspicion: s.clone(),
-            status: if prev_kinds.contains(&kind(s)) { Status::Continuing } else { Status::New },
+            status,
             panel: panel_of.get(s.id.as_str()).copied(),
         })
         .collect();
-    let earlier: Vec<Item> = previous
-        .suspicions
-        .iter()
-        .filter(|s| !cur_kinds.contains(&kind(s)))
-        .map(|s| {
-            let back_in_band = index.get(s.asset.as_str()).is_none_or(|&i| {
-                let g = &gathered[i];
-                let shares: Vec<Option<f64>> = match &s.sensor {
-                    Some(id) => vec![g.last_day_in_band.get(id).copied().flatten()],
-                    None => g.last_day_in_band.values().copied().collect(),
-                };
-                shares.iter().flatten().all(|&x| x >= 0.9)
-            });
-            Item {
-                suspicion: s.clone(),
-                status: if back_in_band { Status::Closed } else { Status::Continuing },
-                panel: None,
-            }
-        })
+    let earlier: Vec<Item> = before
+        .into_iter()
+        .map(|(k, status)| Item { suspicion: previous.suspicions[k].clone(), status, panel: None })
         .collect();
 
     let by_class: Vec<(Class, usize)> =
@@ -817,6 +840,41 @@ pub fn run_report(settings: &ReportSettings) -> Result<Report> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    fn sus(asset: &str, sensor: Option<&str>, mode: Mode, onset_h: i64) -> Suspicion {
+        let onset = crate::time::from_millis(1_778_025_600_000 + onset_h * 3_600_000);
+        Suspicion {
+            id: crate::record::suspicion_id(asset, sensor, mode.class(), mode, onset),
+            rank: 1,
+            asset: asset.to_owned(),
+            sensor: sensor.map(str::to_owned),
+            class: mode.class(),
+            mode,
+            score: 0.9,
+            magnitude: 3.0,
+            onset,
+            detected: onset,
+            summary: String::new(),
+            evidence: Vec::new(),
+        }
+    }
+
+    #[test]
+    fn statuses_follow_asset_sensor_class_and_mode_not_the_onset() {
+        let previous = vec![
+            sus("north-b1", Some("flow"), Mode::Bias, -30), // raised again (new onset): continuing
+            sus("north-b2", Some("flow"), Mode::Stuck, -20), // not again, back in band: closed
+            sus("north-b3", None, Mode::Degradation, -10),  // not again, still out: continuing
+        ];
+        let current = vec![
+            sus("north-b1", Some("flow"), Mode::Bias, 5),
+            sus("north-b2", Some("flow"), Mode::Drift, 6), // another mode: new
+            sus("north-b4", Some("speed"), Mode::Bias, 7),
+        ];
+        let (now, before) = statuses(&current, &previous, |s| s.asset == "north-b2");
+        assert_eq!(now, vec![Status::Continuing, Status::New, Status::New]);
+        assert_eq!(before, vec![(1, Status::Closed), (2, Status::Continuing)]);
+    }
 
     #[test]
     fn median_of_even_and_odd_counts() {
