@@ -488,6 +488,30 @@ fn headless_chromium_renders_the_page_without_console_errors() {
     for bad in ["Uncaught", ":CONSOLE", "net::ERR_"] {
         assert!(!log.contains(bad), "chromium logged {bad:?}:\n{log}");
     }
+    // printed, every page is A4 (595 x 842 pt; from the @page rule)
+    let pdf = dir.path().join("review.pdf");
+    let printed = common("p3")
+        .arg("--no-pdf-header-footer")
+        .arg(format!("--print-to-pdf={}", pdf.display()))
+        .arg(&url)
+        .output()
+        .unwrap();
+    assert!(printed.status.success());
+    let pdf = std::fs::read(&pdf).unwrap();
+    let text = String::from_utf8_lossy(&pdf);
+    let boxes: Vec<&str> = text
+        .match_indices("/MediaBox [")
+        .map(|(i, _)| &text[i..i + text[i..].find(']').unwrap() + 1])
+        .collect();
+    assert!(!boxes.is_empty(), "a PDF with pages");
+    for b in &boxes {
+        let nums: Vec<f64> = b["/MediaBox [".len()..b.find(']').unwrap()]
+            .split_whitespace()
+            .map(|x| x.parse().unwrap())
+            .collect();
+        // A4 is 210 x 297 mm = 595.3 x 841.9 pt (ISO 216)
+        assert!((nums[2] - 595.3).abs() < 1.0 && (nums[3] - 841.9).abs() < 1.0, "{b}");
+    }
     // the DOM chromium built holds every panel and the data at the end
     let dom = common("p2").arg("--dump-dom").arg(&url).output().unwrap();
     assert!(dom.status.success());
