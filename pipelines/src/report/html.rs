@@ -75,6 +75,19 @@ fn when(t: chrono::DateTime<chrono::Utc>) -> String {
     t.format("%Y-%m-%d %H:%M").to_string()
 }
 
+/// An integer with thin spaces between groups of three digits.
+fn thousands(n: u64) -> String {
+    let d = n.to_string();
+    let mut out = String::new();
+    for (i, c) in d.chars().enumerate() {
+        if i > 0 && (d.len() - i).is_multiple_of(3) {
+            out.push('\u{2009}');
+        }
+        out.push(c);
+    }
+    out
+}
+
 /// Three significant digits, no exponent for everyday magnitudes.
 fn sig3(x: f64) -> String {
     let a = x.abs();
@@ -368,12 +381,12 @@ fn glance(out: &mut String, r: &Report) {
         let _ = write!(out, "<div class=\"tt-tile\"><b>{v}</b><span>{label}</span></div>");
     };
     tile(out, format!("{days:.1} d"), "period");
-    tile(out, f.assets.to_string(), "assets judged");
-    tile(out, f.sensors.to_string(), "sensors");
+    tile(out, thousands(f.assets as u64), "assets judged");
+    tile(out, thousands(f.sensors as u64), "sensors");
     tile(out, pct(f.coverage), "data coverage (grid rows with a reading)");
     tile(out, r.items.len().to_string(), "suspicions this period");
     tile(out, f.new.to_string(), "new");
-    tile(out, f.continuing.to_string(), "continuing");
+    tile(out, f.continuing.to_string(), "continuing (raised again, or still outside the band)");
     tile(out, f.closed.to_string(), "closed since last period");
     out.push_str("</div>");
     out.push_str("<table class=\"tt-classes\" style=\"margin-top:10px\"><thead><tr><th>Class</th><th class=\"num\">Suspicions</th></tr></thead><tbody>");
@@ -394,7 +407,7 @@ fn glance(out: &mut String, r: &Report) {
          raised in both periods, or raised last period and its sensors are still outside their baseline \
          band. <em>Closed</em>: raised last period only, and back inside the band over the last day \
          (at least 90 % of judged rows). A lasting change is reported once, at its onset.</p>",
-        f.readings,
+        thousands(f.readings),
         day(r.previous_from_ms),
         day(r.from_ms),
         f.previous
@@ -698,4 +711,21 @@ pub fn render(r: &Report) -> Result<String, ChartError> {
         chart_data(r)
     );
     Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn thousands_groups_by_three() {
+        assert_eq!(thousands(57_538_801), "57\u{2009}538\u{2009}801");
+        assert_eq!(thousands(999), "999");
+        assert_eq!(thousands(1000), "1\u{2009}000");
+    }
+
+    #[test]
+    fn panel_anchors_keep_only_safe_characters() {
+        assert_eq!(panel_anchor("98debf71\"<x>"), "p-98debf71x");
+    }
 }
