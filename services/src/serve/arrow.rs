@@ -206,3 +206,85 @@ pub fn parse_arrow(
     }
     c.finish(asset, from, to, lim)
 }
+
+#[cfg(test)]
+mod tests {
+    #![allow(clippy::unwrap_used, reason = "test code: a panic is a failed test")]
+    use super::*;
+    use arrow_array::types::Int32Type;
+    use arrow_array::{
+        DictionaryArray, Float32Array, Int64Array, StringArray, TimestampSecondArray,
+    };
+    use arrow_schema::{Field, Schema};
+    use std::sync::Arc;
+
+    const LIM: WindowLimits =
+        WindowLimits { max_readings: 100, max_span_ms: 86_400_000, warmup_ms: 3_600_000 };
+
+    fn stream(cols: Vec<(&str, ArrayRef)>) -> Vec<u8> {
+        let schema = Arc::new(Schema::new(
+            cols.iter()
+                .map(|(n, a)| Field::new(*n, a.data_type().clone(), true))
+                .collect::<Vec<_>>(),
+        ));
+        let b =
+            RecordBatch::try_new(schema.clone(), cols.into_iter().map(|c| c.1).collect()).unwrap();
+        let mut out = Vec::new();
+        let mut w = arrow_ipc::writer::StreamWriter::try_new(&mut out, &schema).unwrap();
+        w.write(&b).unwrap();
+        w.finish().unwrap();
+        drop(w);
+        out
+    }
+
+    #[test]
+    fn dictionary_sensors_second_timestamps_and_nulls_are_read() {
+        let sensor: DictionaryArray<Int32Type> =
+            vec!["flow", "speed", "flow"].into_iter().collect();
+        let body = stream(vec![
+            ("sensor", Arc::new(sensor) as ArrayRef),
+            (
+                "ts",
+                Arc::new(TimestampSecondArray::from(vec![
+                    1_778_025_600,
+                    1_778_025_600,
+                    1_778_025_660,
+                ])),
+            ),
+            ("value", Arc::new(Float32Array::from(vec![Some(1.5), None, Some(2.0)]))),
+            ("quality", Arc::new(StringArray::from(vec!["good", "good", "bad"]))),
+        ]);
+        let w = parse_arrow(&body, "p1".into(), None, None, &LIM).unwrap();
+        assert_eq!(w.readings, 3);
+        let f = &w.sensors["flow"];
+        assert_eq!(f.ts_ms, vec![1_778_025_600_000, 1_778_025_660_000]);
+        assert_eq!((f.value[0], f.good[1]), (1.5, false));
+        assert!(w.sensors["speed"].value[0].is_nan());
+    }
+
+    #[test]
+    fn wrong_columns_and_values_are_named() {
+        let field = |body: Vec<u8>| match parse_arrow(&body, "p1".into(), None, None, &LIM) {
+            Err(ApiError::Invalid { field, .. }) => field,
+            other => panic!("{other:?}"),
+        };
+        let s = || Arc::new(StringArray::from(vec!["flow", "flow"])) as ArrayRef;
+        let t =
+            || Arc::new(Int64Array::from(vec![1_778_025_600_000, 1_778_025_660_000])) as ArrayRef;
+        assert_eq!(field(stream(vec![("sensor", s()), ("ts", t())])), "value");
+        let inf = Arc::new(Float32Array::from(vec![1.0, f32::INFINITY])) as ArrayRef;
+        assert_eq!(
+            field(stream(vec![("sensor", s()), ("ts", t()), ("value", inf)])),
+            "rows[1].value"
+        );
+        let text = Arc::new(StringArray::from(vec!["1", "2"])) as ArrayRef;
+        assert_eq!(field(stream(vec![("sensor", s()), ("ts", t()), ("value", text)])), "value");
+        let back =
+            Arc::new(Int64Array::from(vec![1_778_025_660_000, 1_778_025_600_000])) as ArrayRef;
+        let v = || Arc::new(Float32Array::from(vec![1.0, 2.0])) as ArrayRef;
+        assert_eq!(
+            field(stream(vec![("sensor", s()), ("ts", back), ("value", v())])),
+            "rows[1].ts"
+        );
+    }
+}

@@ -392,13 +392,13 @@ async fn metrics_layer(State(state): State<AppState>, req: Request, next: Next) 
         .map_or_else(|| "unmatched".to_owned(), |m| m.as_str().to_owned());
     let method = req.method().to_string();
     let t0 = Instant::now();
-    let resp = next.run(req).await;
-    state.inner.metrics.request(
-        &route,
-        &method,
-        resp.status().as_u16(),
-        t0.elapsed().as_secs_f64(),
-    );
+    let span = tracing::debug_span!("request", %method, route = %route, uri = %req.uri());
+    let resp = tracing::Instrument::instrument(next.run(req), span.clone()).await;
+    let secs = t0.elapsed().as_secs_f64();
+    span.in_scope(|| {
+        tracing::debug!(status = resp.status().as_u16(), elapsed_ms = secs * 1e3, "answered");
+    });
+    state.inner.metrics.request(&route, &method, resp.status().as_u16(), secs);
     resp
 }
 
