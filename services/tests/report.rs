@@ -91,7 +91,7 @@ fn chart_data(html: &str) -> Value {
     let tag = "<script type=\"application/json\" id=\"tt-chart-data\">";
     let start = html.find(tag).expect("chart data embedded") + tag.len();
     let end = start + html[start..].find("</script>").unwrap();
-    serde_json::from_str(&html[start..end].replace("<\\/", "</")).unwrap()
+    serde_json::from_str(&html[start..end]).unwrap()
 }
 
 /// Each panel's HTML, by suspicion id, in page order.

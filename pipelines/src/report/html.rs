@@ -347,7 +347,7 @@ struct PanelData<'a> {
     neighbours: Vec<ChartData<'a>>,
 }
 
-/// The embedded JSON of every panel's chart data (`</` escaped for a script element).
+/// The embedded JSON of every panel's chart data (`<` escaped for a script element).
 fn chart_data(r: &Report) -> String {
     let panels: Vec<PanelData<'_>> = r
         .panels
@@ -370,7 +370,13 @@ fn chart_data(r: &Report) -> String {
         ),
         "panels": panels,
     });
-    json.to_string().replace("</", "<\\/")
+    script_json(&json)
+}
+
+/// JSON for a `<script>` element: `<` only occurs inside JSON strings, where
+/// `\u003c` means the same, so no `</script>` or `<!--` can end or confuse it.
+fn script_json(v: &serde_json::Value) -> String {
+    v.to_string().replace('<', "\\u003c")
 }
 
 fn glance(out: &mut String, r: &Report) {
@@ -727,5 +733,13 @@ mod tests {
     #[test]
     fn panel_anchors_keep_only_safe_characters() {
         assert_eq!(panel_anchor("98debf71\"<x>"), "p-98debf71x");
+    }
+
+    #[test]
+    fn embedded_json_has_no_angle_bracket() {
+        let s = script_json(&serde_json::json!({"id": "</script><!--"}));
+        assert!(!s.contains('<'));
+        let back: serde_json::Value = serde_json::from_str(&s).unwrap();
+        assert_eq!(back["id"], "</script><!--");
     }
 }
