@@ -627,13 +627,41 @@ fn sigterm_finishes_the_request_in_flight_and_exits_cleanly() {
     let key = add_key(&db, "write");
     let (_, _, body) = suspect_window();
     let mut srv = Server::start(&f.store, &db, &[]);
-    let url = srv.url("/v1/windows/score");
-    let k = key.clone();
-    let inflight = std::thread::spawn(move || post(&url, Some(&k), &body).status);
-    std::thread::sleep(std::time::Duration::from_millis(200));
+    // a request whose body is half sent when the signal arrives
+    use std::io::{Read, Write};
+    let text = body.to_string();
+    let host = srv.base.trim_start_matches("http://").to_owned();
+    let mut conn = std::net::TcpStream::connect(&host).unwrap();
+    write!(
+        conn,
+        "POST /v1/windows/score HTTP/1.1\r\nHost: {host}\r\nAuthorization: Bearer {key}\r\n\
+         Content-Type: application/json\r\nContent-Length: {}\r\nConnection: close\r\n\r\n",
+        text.len()
+    )
+    .unwrap();
+    let half = text.len() / 2;
+    conn.write_all(&text.as_bytes()[..half]).unwrap();
+    conn.flush().unwrap();
+    std::thread::sleep(std::time::Duration::from_millis(300));
     let pid = srv.child.id().to_string();
-    std::process::Command::new("kill").args(["-TERM", &pid]).status().unwrap();
-    assert_eq!(inflight.join().unwrap(), 200);
+    // the shell's own kill: no procps needed
+    let sent = std::process::Command::new("sh")
+        .args(["-c", &format!("kill -TERM {pid}")])
+        .status()
+        .unwrap();
+    assert!(sent.success());
+    std::thread::sleep(std::time::Duration::from_millis(300));
+    assert!(srv.child.try_wait().unwrap().is_none(), "stopped with a request in flight");
+    // new connections are no longer taken
+    assert!(
+        agent().get(&srv.url("/healthz")).call().is_err(),
+        "a new request was served after SIGTERM"
+    );
+    conn.write_all(&text.as_bytes()[half..]).unwrap();
+    let mut answer = String::new();
+    conn.read_to_string(&mut answer).unwrap();
+    assert!(answer.starts_with("HTTP/1.1 200"), "{}", &answer[..answer.len().min(300)]);
+    assert!(answer.contains("\"suspicions\""));
     let status = srv.child.wait().unwrap();
     assert!(status.success(), "exit after SIGTERM: {status:?}");
 }
