@@ -473,6 +473,12 @@ fn keys_are_required_and_scoped() {
     }
     assert_problem(&get(&srv.url("/v1/suspicions"), None), 401, None);
     assert_eq!(get(&srv.url("/v1/suspicions"), Some(&read)).status, 200);
+    // the scheme name is case-insensitive
+    let lower = agent()
+        .get(&srv.url("/v1/suspicions"))
+        .header("Authorization", &format!("bearer {read}"))
+        .call();
+    assert_eq!(finish(lower).status, 200);
     // a write key passes the check (and meets the unknown asset)
     assert_problem(&post(&score, Some(&write), &w), 404, None);
     // revoked keys stop working at once, on the running server

@@ -349,7 +349,8 @@ async fn auth(
         .headers()
         .get(header::AUTHORIZATION)
         .and_then(|v| v.to_str().ok())
-        .and_then(|v| v.strip_prefix("Bearer "))
+        // the auth scheme is case-insensitive (RFC 9110 section 11.1)
+        .and_then(|v| v.get(..7).filter(|p| p.eq_ignore_ascii_case("bearer ")).map(|_| &v[7..]))
         .map(|t| t.trim().to_owned())
         .ok_or_else(|| {
             ApiError::Unauthorized(
