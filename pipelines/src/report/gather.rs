@@ -581,18 +581,17 @@ fn main_sensor(s: &Suspicion, charts: &[SensorChart]) -> Option<usize> {
     if let Some(id) = &s.sensor {
         return charts.iter().position(|c| &c.sensor == id);
     }
-    let named = |c: &SensorChart| {
-        s.summary
-            .match_indices(c.sensor.as_str())
-            .any(|(i, m)| {
-                let before = s.summary[..i].chars().next_back();
-                let after = s.summary[i + m.len()..].chars().next();
-                let word = |c: Option<char>| {
-                    c.is_some_and(|c| c.is_alphanumeric() || c == '_' || c == '-')
-                };
-                !word(before) && !word(after)
-            })
-            .then(|| s.summary.find(c.sensor.as_str()).unwrap_or(usize::MAX))
+    // position of the first whole-word mention of the sensor id
+    let named = |c: &SensorChart| -> Option<usize> {
+        if c.sensor.is_empty() {
+            return None;
+        }
+        let word = |c: Option<char>| c.is_some_and(|c| c.is_alphanumeric() || c == '_' || c == '-');
+        s.summary.match_indices(c.sensor.as_str()).map(|(i, _)| i).find(|&i| {
+            let before = s.summary[..i].chars().next_back();
+            let after = s.summary[i + c.sensor.len()..].chars().next();
+            !word(before) && !word(after)
+        })
     };
     charts
         .iter()
@@ -874,6 +873,43 @@ mod tests {
         let (now, before) = statuses(&current, &previous, |s| s.asset == "north-b2");
         assert_eq!(now, vec![Status::Continuing, Status::New, Status::New]);
         assert_eq!(before, vec![(1, Status::Closed), (2, Status::Continuing)]);
+    }
+
+    fn chart(sensor: &str, role: &'static str) -> SensorChart {
+        SensorChart {
+            sensor: sensor.to_owned(),
+            unit: None,
+            role,
+            from_ms: 0,
+            to_ms: 1,
+            columns: Vec::new(),
+            band: Vec::new(),
+            peers: Vec::new(),
+            peer_assets: Vec::new(),
+            range: None,
+        }
+    }
+
+    #[test]
+    fn an_asset_level_panel_draws_the_first_sensor_its_summary_names_as_a_word() {
+        let charts = [
+            chart("speed", "context"),
+            chart("flow", "context"),
+            chart("bearing_de_temp", "condition"),
+            chart("winding_temp", "condition"),
+        ];
+        let mut s = sus("north-b1", None, Mode::Degradation, 0);
+        // "overflow" is not "flow"; "bearing_de_temp" comes before "winding_temp"
+        s.summary = "north-b1 overflow: bearing_de_temp, winding_temp moving together".into();
+        assert_eq!(main_sensor(&s, &charts), Some(2));
+        s.summary = "north-b1: winding_temp and flow".into();
+        assert_eq!(main_sensor(&s, &charts), Some(3));
+        // none named: the first condition sensor
+        s.summary = "north-b1 changed".into();
+        assert_eq!(main_sensor(&s, &charts), Some(2));
+        // a sensor-level suspicion draws its own sensor
+        let t = sus("north-b1", Some("flow"), Mode::Bias, 0);
+        assert_eq!(main_sensor(&t, &charts), Some(1));
     }
 
     #[test]
