@@ -21,12 +21,18 @@ fn demo_small_writes_history_registry_and_truth() {
         // data on stdout ...
         .stdout(predicate::str::contains("history.parquet"))
         .stdout(predicate::str::contains("sensor_fault"))
+        .stdout(predicate::str::contains("review.html"))
         // ... logs on stderr
         .stderr(predicate::str::contains("demo fleet written"));
-    for f in ["history.parquet", "fleet.toml", "events.csv", "outages.csv"] {
+    for f in ["history.parquet", "fleet.toml", "events.csv", "outages.csv", "review.html"] {
         let p = out.join(f);
         assert!(p.metadata().unwrap().len() > 0, "{f} missing or empty");
     }
+    assert!(out.join("suspicions.jsonl").is_file());
+    // the weekly review of the scan span's last week, with the caution
+    let page = std::fs::read_to_string(out.join("review.html")).unwrap();
+    assert!(page.contains("Weekly reliability review"));
+    assert!(page.contains("not a protective or safety function"));
     let events = telltale_pipelines::io::read_events(out.join("events.csv")).unwrap();
     assert!(!events.is_empty());
     let registry = telltale_pipelines::registry::Registry::load(out.join("fleet.toml")).unwrap();

@@ -11,7 +11,8 @@ use telltale_datasets::{FleetParams, generate_fleet};
 use telltale_pipelines::io::{FileFormat, write_events};
 use telltale_pipelines::jobs::{FitSettings, ScanSettings, run_fit, run_scan};
 use telltale_pipelines::record::Suspicion;
-use telltale_pipelines::time::format_time;
+use telltale_pipelines::report::{ReportSettings, html, run_report};
+use telltale_pipelines::time::{format_time, from_millis};
 
 /// Size presets of the demo fleet.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
@@ -102,6 +103,8 @@ pub(crate) const OUTAGES_FILE: &str = "outages.csv";
 pub(crate) const SUSPICIONS_FILE: &str = "suspicions.jsonl";
 /// Name of the baseline store folder in the demo directory.
 pub(crate) const STORE_DIR: &str = "store";
+/// Name of the weekly review page the demo writes (the scan span's last week).
+pub(crate) const REVIEW_FILE: &str = "review.html";
 
 pub(crate) fn run(args: &DemoArgs, _quiet: bool) -> anyhow::Result<()> {
     // Stage 1: check every setting before any work.
@@ -199,6 +202,19 @@ fn fit_and_scan(args: &DemoArgs, summary: &telltale_datasets::FleetSummary) -> a
     let sus_path = args.out.join(SUSPICIONS_FILE);
     super::scan::write_out(&report.suspicions, Some(&sus_path), FileFormat::Jsonl)?;
 
+    // the weekly review of the scan span's last week (the week before it is
+    // the review's previous period)
+    let week_ms = 7 * 24 * 3_600_000;
+    let to = t.scan.end.timestamp_millis();
+    let from = (to - week_ms).max(t.scan.start.timestamp_millis());
+    let mut rs = ReportSettings::new(&summary.history, &store, from, to);
+    rs.registry = Some(summary.registry.clone());
+    tracing::info!("writing the weekly review of the last week");
+    let review = run_report(&rs).context("gathering the demo's weekly review")?;
+    let page = html::render(&review).context("drawing the demo's weekly review")?;
+    let review_path = args.out.join(REVIEW_FILE);
+    super::report::write_file(&review_path, &page)?;
+
     let mut out = std::io::stdout().lock();
     writeln!(out)?;
     writeln!(
@@ -215,6 +231,13 @@ fn fit_and_scan(args: &DemoArgs, summary: &telltale_datasets::FleetSummary) -> a
     writeln!(out)?;
     writeln!(out, "  suspicions {}", sus_path.display())?;
     writeln!(out, "  baselines  {}", store.display())?;
+    writeln!(
+        out,
+        "  review     {} (the week {} .. {})",
+        review_path.display(),
+        format_time(from_millis(from)),
+        format_time(from_millis(to))
+    )?;
     writeln!(
         out,
         "  measure    telltale evaluate --suspicions {} --events {} --outages {} --fleet {} \\\n             --from {} --to {}",

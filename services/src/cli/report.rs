@@ -115,7 +115,7 @@ impl ReportArgs {
 }
 
 /// Writes `text` to `path` through a temporary file beside it (atomic rename).
-fn write_file(path: &Path, text: &str) -> anyhow::Result<()> {
+pub(crate) fn write_file(path: &Path, text: &str) -> anyhow::Result<()> {
     let tmp = path.with_extension(format!(
         "{}.tmp",
         path.extension().and_then(|e| e.to_str()).unwrap_or("out")
