@@ -355,6 +355,123 @@ impl AssetBaseline {
     }
 }
 
+/// What [`AssetBaseline::relearn_sensor`] changed.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct RelearnReport {
+    /// Regimes whose baseline of the sensor was learnt again from the new span.
+    pub relearnt_regimes: Vec<usize>,
+    /// Regimes the new span has too few rows of; their previous baseline is kept.
+    pub kept_regimes: Vec<usize>,
+    /// Whether the sensor's regression on the context was learnt again
+    /// (`false`: kept, or the sensor has none).
+    pub regression_relearnt: bool,
+    /// Whether the PCA monitor was learnt again on the new span (`false`: kept).
+    pub pca_relearnt: bool,
+    /// Grid rows of the new span with a value of the sensor.
+    pub rows: usize,
+}
+
+impl AssetBaseline {
+    /// A copy of this baseline with condition sensor `sensor` learnt again
+    /// from the series over `[from_ms, to_ms)`, keeping the operating
+    /// regimes and every other sensor's baselines: the re-baseline after an
+    /// accepted process change on one sensor.
+    ///
+    /// The new span's rows are put into regimes by this baseline's regime
+    /// model; each regime with at least `min_rows` rows of the sensor gets a
+    /// new baseline of the sensor (the others keep the old one and are
+    /// listed in the report), the sensor's regression on the context is
+    /// fitted again when the span allows, and so is the PCA monitor (whose
+    /// standardised space the sensor is part of). A context sensor defines
+    /// the regimes themselves, so it cannot be re-learnt alone: re-fit the
+    /// whole asset instead; so does a sensor whose readings tell when the
+    /// asset is at rest (a rest rule, found when no sensor is registered
+    /// as context).
+    ///
+    /// # Errors
+    /// [`BaselineError::SensorCount`] for a wrong number of series; input
+    /// errors of [`align`]; [`BaselineError::TooFewRows`] when no regime has
+    /// `min_rows` rows of the sensor; [`BaselineError::ContextSensor`] for a
+    /// context sensor, a sensor with a rest rule, or a position out of range.
+    pub fn relearn_sensor(
+        &self,
+        series: &[SensorSeries<'_>],
+        sensor: usize,
+        from_ms: i64,
+        to_ms: i64,
+    ) -> Result<(AssetBaseline, RelearnReport), BaselineError> {
+        if sensor >= self.sensors.len()
+            || self.sensors[sensor].role != SensorRole::Condition
+            || self.regimes.rest_rules().iter().any(|r| r.sensor == sensor)
+        {
+            return Err(BaselineError::ContextSensor(sensor));
+        }
+        let frame = self.align(series, Some(from_ms), Some(to_ms))?;
+        let values = frame.values.view();
+        let labels: Vec<Option<usize>> =
+            values
+                .rows()
+                .into_iter()
+                .map(|row| {
+                    if row.iter().all(|v| !v.is_finite()) {
+                        None
+                    } else {
+                        self.regimes.classify(row)
+                    }
+                })
+                .collect();
+        let s = &series[sensor];
+        let raw: Vec<f64> = s.usable().map(|(_, v)| v).collect();
+        let resolution = estimate_resolution(&raw).map(|r| r.step);
+        let interval = s.median_interval_ms();
+        let min_rows = self.params.min_rows;
+        let mut out = self.clone();
+        let mut report = RelearnReport {
+            relearnt_regimes: Vec::new(),
+            kept_regimes: Vec::new(),
+            regression_relearnt: false,
+            pca_relearnt: false,
+            rows: values.column(sensor).iter().filter(|v| v.is_finite()).count(),
+        };
+        for g in 0..self.regimes.n_regimes() {
+            let col = values.column(sensor);
+            match fit_sensor_regime(col, &labels, g, resolution, interval, min_rows) {
+                Some(b) => {
+                    out.sensor_baselines[sensor][g] = Some(b);
+                    report.relearnt_regimes.push(g);
+                }
+                None => report.kept_regimes.push(g),
+            }
+        }
+        if report.relearnt_regimes.is_empty() {
+            let got = labels
+                .iter()
+                .zip(values.column(sensor))
+                .filter(|(l, v)| l.is_some() && v.is_finite())
+                .count();
+            return Err(BaselineError::TooFewRows { got, need: min_rows });
+        }
+        if let Some(r) = fit_regression(
+            values,
+            &labels,
+            &self.regimes,
+            sensor,
+            resolution,
+            self.params.huber_k,
+            min_rows,
+        ) {
+            out.regressions[sensor] = Some(r);
+            report.regression_relearnt = true;
+        }
+        out.n_readings[sensor] = raw.len();
+        if let Some(p) = fit_pca(&out, values, &labels, &self.params) {
+            out.pca = Some(p);
+            report.pca_relearnt = true;
+        }
+        Ok((out, report))
+    }
+}
+
 impl AssetBaselineValidParams {
     fn knobs(&self) -> RegimeKnobs {
         RegimeKnobs {

@@ -94,6 +94,13 @@ pub enum BaselineError {
         /// minimum
         need: usize,
     },
+    /// Only a condition sensor can be re-learnt alone.
+    #[error(
+        "sensor #{0} defines the operating regimes (a context sensor or the asset's rest \
+         indicator), or is not in the baseline, so it cannot be re-learnt alone; re-fit the whole \
+         asset"
+    )]
+    ContextSensor(usize),
     /// A frame or row does not have the baseline's number of sensors.
     #[error(
         "data has {got} sensors but the baseline was fitted on {want}; pass the sensors in fit order"

@@ -57,7 +57,7 @@ pub use align::{
 };
 pub use asset::{
     AssetBaseline, AssetBaselineParams, AssetBaselineValidParams, BASELINE_VERSION, PcaMonitor,
-    RowScores, score_rows,
+    RelearnReport, RowScores, score_rows,
 };
 pub use eigen::symmetric_eigen;
 pub use error::{BaselineError, BaselineParamsError};

@@ -327,3 +327,67 @@ fn fit_time_ten_sensors_four_weeks() {
     println!("fit of {} sensors x {} rows: {:?}", b.sensors.len(), b.n_rows, el);
     assert_eq!(b.regimes.n_regimes(), 3);
 }
+
+#[test]
+fn relearning_one_sensor_absorbs_its_shift_and_keeps_the_rest() {
+    let (_, b) = fitted(47, 10_000);
+    // after an accepted process change the head reads 4 sd higher at every speed
+    let shifted = |seed: u64, n: usize| {
+        let mut rng = Xoshiro256Plus::seed_from_u64(seed);
+        let mut w = synth(&mut rng, n, two_speeds_and_stops, 0.0);
+        w.vals[HEAD].iter_mut().for_each(|v| *v += 4.0 * HEAD_SD);
+        w
+    };
+    let head_residual = |base: &AssetBaseline, w: &Synth| {
+        let frame = base.align(&w.series(), None, None).unwrap();
+        let mut out = RowScores::new(frame.n_rows(), 6);
+        score_rows(base, frame.values.view(), &mut out).unwrap();
+        median(out.residual_z.column(HEAD).iter().copied())
+    };
+    let learn = shifted(1047, 3_000);
+    let later = shifted(2047, 2_000);
+    let before = head_residual(&b, &later);
+    assert!(before > 3.0, "the shift shows before re-learning: {before}");
+    let (start, end) = (learn.ts[0][0], *learn.ts[0].last().unwrap() + 60_000);
+    let (nb, report) = b.relearn_sensor(&learn.series(), HEAD, start, end).unwrap();
+    let after = head_residual(&nb, &later);
+    assert!(after.abs() < 0.5, "re-learnt head residual z {after}");
+    // both running speeds are re-learnt; every regime is either re-learnt or kept
+    assert!(report.relearnt_regimes.ends_with(&[1, 2]), "{report:?}");
+    let mut all = [report.relearnt_regimes.clone(), report.kept_regimes.clone()].concat();
+    all.sort_unstable();
+    assert_eq!(all, vec![0, 1, 2], "{report:?}");
+    assert!(report.regression_relearnt && report.pca_relearnt);
+    // the regimes and every other sensor's baselines are untouched
+    assert_eq!(format!("{:?}", nb.regimes), format!("{:?}", b.regimes));
+    for j in (0..6).filter(|&j| j != HEAD) {
+        assert_eq!(nb.sensor_baselines[j], b.sensor_baselines[j], "sensor {j}");
+        assert_eq!(format!("{:?}", nb.regressions[j]), format!("{:?}", b.regressions[j]));
+    }
+    // the new location is the median (its definition) of the new span's grid
+    // values of the head in that regime, regimes as the old model assigns them
+    let frame = b.align(&learn.series(), Some(start), Some(end)).unwrap();
+    let v = frame.values.view();
+    let fast: Vec<f64> = (0..v.nrows())
+        .filter(|&r| b.regimes.classify(v.row(r)) == Some(2))
+        .map(|r| v[[r, HEAD]])
+        .filter(|x| x.is_finite())
+        .collect();
+    let mut sorted = fast.clone();
+    sorted.sort_by(f64::total_cmp);
+    let n = sorted.len();
+    let med = if n % 2 == 1 { sorted[n / 2] } else { 0.5 * (sorted[n / 2 - 1] + sorted[n / 2]) };
+    let loc = nb.sensor_baselines[HEAD][2].as_ref().unwrap().location;
+    assert!((loc - med).abs() < 1e-12, "location {loc} vs median {med}");
+}
+
+#[test]
+fn relearning_refuses_a_context_sensor_and_too_little_data() {
+    let (s, b) = fitted(48, 10_000);
+    let err = b.relearn_sensor(&s.series(), 0, s.ts[0][0], s.ts[0][0] + 86_400_000).unwrap_err();
+    assert!(matches!(err, BaselineError::ContextSensor(0)), "{err}");
+    // ten minutes of data: fewer rows than min_rows in every regime
+    let t0 = s.ts[0][0];
+    let err = b.relearn_sensor(&s.series(), HEAD, t0, t0 + 600_000).unwrap_err();
+    assert!(matches!(err, BaselineError::TooFewRows { .. }), "{err}");
+}
