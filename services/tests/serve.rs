@@ -449,7 +449,7 @@ fn every_endpoint_answers_and_feedback_is_idempotent() {
             assert!(r.status != 404 && r.status != 405, "{m} {p}: {}", r.status);
         }
     }
-    assert_eq!(ops, 9);
+    assert_eq!(ops, 10);
     // and a route it does not document is a problem 404
     assert_problem(&get(&srv.url("/v1/nothing"), Some(&read)), 404, None);
     assert_problem(&post(&srv.url("/v1/assets"), Some(&write), &json!({})), 405, None);
@@ -623,6 +623,12 @@ fn acknowledged_records_survive_a_kill() {
     assert_eq!(one.body["status"], "process_change_accepted");
     assert_eq!(one.body["feedback"][0]["work_order"], "WO-77");
     assert_eq!(one.body["feedback"][0]["seq"], r.body["feedback"]["seq"]);
+    // the re-baseline the acceptance asked for is kept too; without --history it waits, saying why
+    assert_eq!(one.body["rebaseline"]["state"], "pending", "{}", one.text);
+    wait_for("the worker's note", || {
+        let one = get(&srv.url(&format!("/v1/suspicions/{}", ids[0])), Some(&key));
+        one.body["rebaseline"]["detail"].as_str().unwrap().contains("--history")
+    });
 }
 
 #[test]
@@ -903,4 +909,179 @@ fn webhook_deliveries_are_signed_retried_and_neither_lost_nor_repeated_across_re
     let _srv = Server::start(&f.store, &db, &args);
     std::thread::sleep(std::time::Duration::from_millis(1500));
     assert_eq!(log.lock().unwrap().len(), got.len(), "nothing sent twice");
+}
+
+/// A copy of the fixture's store that a test may change.
+fn store_copy(dir: &Path) -> PathBuf {
+    let to = dir.join("store");
+    let from = &fixture().store;
+    for e in walk(from) {
+        let rel = e.strip_prefix(from).unwrap();
+        let dst = to.join(rel);
+        std::fs::create_dir_all(dst.parent().unwrap()).unwrap();
+        std::fs::copy(&e, &dst).unwrap();
+    }
+    to
+}
+
+fn walk(d: &Path) -> Vec<PathBuf> {
+    let mut out = Vec::new();
+    for e in std::fs::read_dir(d).unwrap() {
+        let p = e.unwrap().path();
+        if p.is_dir() { out.extend(walk(&p)) } else { out.push(p) }
+    }
+    out
+}
+
+/// Accepts `pick` (found in the HTTP result of scoring `asset` over
+/// [FROM, TO)) as a process change and waits for its re-baseline; returns
+/// the suspicion, the re-baseline row and the suspicions of the window from
+/// its onset on (`[onset, TO)`, readings from the onset only: the span the
+/// re-baseline learns from) scored before and after.
+fn accept_and_rebaseline(
+    srv: &Server,
+    key: &str,
+    asset: &str,
+    pick: impl Fn(&Value) -> bool,
+) -> (Value, Value, Vec<Value>, Vec<Value>) {
+    let f = fixture();
+    let h = asset_history(&f.history, asset, ms(FROM) - WARMUP_MS, ms(TO));
+    let r = post(&srv.url("/v1/windows/score"), Some(key), &window_json(&h, FROM, TO));
+    assert_eq!(r.status, 200, "{}", r.text);
+    let s = r.body["suspicions"].as_array().unwrap().iter().find(|s| pick(s)).cloned();
+    let s = s.unwrap_or_else(|| panic!("{asset}: no suspicion to accept in {}", r.text));
+    let onset = s["onset"].as_str().unwrap().to_owned();
+    let later = asset_history(&f.history, asset, ms(&onset), ms(TO));
+    let score_later = || {
+        let r = post(&srv.url("/v1/windows/score"), Some(key), &window_json(&later, &onset, TO));
+        assert_eq!(r.status, 200, "{}", r.text);
+        r.body["suspicions"].as_array().unwrap().clone()
+    };
+    let before = score_later();
+    let id = s["id"].as_str().unwrap();
+    let fb = json!({"verdict": "process_change_accepted", "note": "new duty point after the valve work", "work_order": "WO-310"});
+    let r = post(&srv.url(&format!("/v1/suspicions/{id}/feedback")), Some(key), &fb);
+    assert_eq!(r.status, 201, "{}", r.text);
+    assert_eq!(r.body["rebaseline"]["suspicion_id"], id, "{}", r.text);
+    assert_eq!(r.body["rebaseline"]["onset"], s["onset"]);
+    let mut row = Value::Null;
+    let t0 = std::time::Instant::now();
+    while t0.elapsed() < std::time::Duration::from_secs(180) {
+        row = get(&srv.url(&format!("/v1/suspicions/{id}")), Some(key)).body["rebaseline"].clone();
+        if row["state"] != "pending" {
+            break;
+        }
+        std::thread::sleep(std::time::Duration::from_millis(200));
+    }
+    assert_eq!(row["state"], "done", "{row}");
+    (s, row, before, score_later())
+}
+
+#[test]
+fn accepting_a_process_change_re_baselines_the_sensor_or_asset_from_its_onset() {
+    let f = fixture();
+    let dir = tempfile::tempdir().unwrap();
+    let store = store_copy(dir.path());
+    let db = dir.path().join("t.db");
+    let key = add_key(&db, "write");
+    let hist = f.history.to_str().unwrap();
+    let srv = Server::start(&store, &db, &["--history", hist, "--rebaseline-retry-s", "1"]);
+    let scan = fleet_scan();
+    let baseline_of = |asset: &str, version: Option<i64>| {
+        let q = version.map(|v| format!("?version={v}")).unwrap_or_default();
+        let r = get(&srv.url(&format!("/v1/assets/{asset}/baseline{q}")), Some(&key));
+        assert_eq!(r.status, 200, "{}", r.text);
+        r.body
+    };
+
+    // 1. one condition sensor: a bias the reviewers judge a real change of the discharge
+    let bias = scan
+        .iter()
+        .find(|s| s.mode.as_str() == "bias" && s.sensor.as_deref() == Some("discharge_pressure"))
+        .expect("the small demo has a discharge-pressure bias");
+    let asset = bias.asset.clone();
+    let original: Value = serde_json::from_slice(
+        &std::fs::read(store.join("baselines").join(format!("{asset}.json"))).unwrap(),
+    )
+    .unwrap();
+    let (s, row, before, after) =
+        accept_and_rebaseline(&srv, &key, &asset, |s| s["id"] == bias.id.as_str());
+    assert_eq!(row["version"], 2, "{row}");
+    let detail = row["detail"].as_str().unwrap();
+    assert!(detail.starts_with("sensor discharge_pressure re-learnt from"), "{detail}");
+    let on_sensor = |v: &[Value]| {
+        v.iter()
+            .filter(|x| x["sensor"] == "discharge_pressure" && x["class"] == "sensor_fault")
+            .count()
+    };
+    assert!(on_sensor(&before) >= 1, "the window from the onset shows the bias before: {before:?}");
+    eprintln!("{asset}: {detail}");
+    assert_eq!(on_sensor(&after), 0, "still flagged after the re-baseline: {after:?}");
+    // the versions: the fitted one, then the re-baseline from the onset
+    let v = get(&srv.url(&format!("/v1/assets/{asset}/baselines")), Some(&key));
+    assert_eq!(v.status, 200, "{}", v.text);
+    let items = v.body["items"].as_array().unwrap();
+    assert_eq!(items.len(), 2, "{}", v.text);
+    assert_eq!((items[0]["version"].as_i64(), items[0]["reason"].as_str()), (Some(1), Some("fit")));
+    assert_eq!(items[1]["reason"], "process_change_accepted");
+    assert_eq!(items[1]["suspicion_id"], s["id"]);
+    assert_eq!(items[1]["sensor"], "discharge_pressure");
+    assert_eq!(items[1]["from"], s["onset"]);
+    assert_eq!(v.body["in_store"], 2);
+    // version 1 is the fitted file; the new one differs from it in that sensor only
+    assert_eq!(baseline_of(&asset, Some(1)), original);
+    let now = baseline_of(&asset, None);
+    assert_eq!(now, baseline_of(&asset, Some(2)));
+    let pos = original["sensors"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .position(|x| x["id"] == "discharge_pressure")
+        .unwrap();
+    let per = |b: &Value| b["baseline"]["sensor_baselines"].as_array().unwrap().clone();
+    let (old, new) = (per(&original), per(&now));
+    for j in 0..old.len() {
+        if j == pos {
+            assert_ne!(old[j], new[j], "the accepted sensor was not re-learnt");
+        } else {
+            assert_eq!(old[j], new[j], "sensor #{j} changed");
+        }
+    }
+    assert_eq!(now["calibration"], original["calibration"]);
+    assert_eq!(now["baseline"]["regimes"], original["baseline"]["regimes"]);
+    let r = get(&srv.url(&format!("/v1/assets/{asset}/baseline?version=9")), Some(&key));
+    assert_problem(&r, 404, None);
+    let r = get(&srv.url(&format!("/v1/assets/{asset}/baseline?version=x")), Some(&key));
+    assert_problem(&r, 422, Some("version"));
+
+    // 2. an asset-wide suspicion: the whole asset is learnt again from the onset
+    let wide_of = |s: &Value| s["sensor"].is_null() && s["mode"] != "common_mode";
+    let mut assets: Vec<&str> =
+        scan.iter().filter(|s| s.sensor.is_none()).map(|s| s.asset.as_str()).collect();
+    assets.dedup();
+    let asset = assets
+        .into_iter()
+        .find(|a| {
+            let h = asset_history(&f.history, a, ms(FROM) - WARMUP_MS, ms(TO));
+            let r = post(&srv.url("/v1/windows/score"), Some(&key), &window_json(&h, FROM, TO));
+            r.body["suspicions"].as_array().unwrap().iter().any(wide_of)
+        })
+        .expect("the small demo has an asset-wide suspicion that does not hang on peers")
+        .to_owned();
+    let (wide, row, before, after) = accept_and_rebaseline(&srv, &key, &asset, wide_of);
+    let detail = row["detail"].as_str().unwrap();
+    assert!(detail.starts_with("whole asset re-learnt and re-calibrated from"), "{detail}");
+    let same = |v: &[Value]| {
+        v.iter().filter(|x| x["sensor"].is_null() && x["class"] == wide["class"]).count()
+    };
+    assert!(same(&before) >= 1, "the window from the onset shows it before: {before:?}");
+    eprintln!("{asset}: {detail}");
+    assert_eq!(
+        same(&after),
+        0,
+        "still flagged after the re-baseline: {after:?} (before {before:?})"
+    );
+    let now = baseline_of(&asset, None);
+    assert_eq!(now["fit_from"], wide["onset"]);
+    assert_ne!(now["calibration"], Value::Null);
 }

@@ -358,7 +358,7 @@ impl TrainingChunks {
 /// Interleaving, rather than a train-then-test split, lets both halves see
 /// every duty pattern (pumps that swap duty weekly, weekend stops); chunks
 /// of days keep the slow autocorrelation of the held-out blocks realistic.
-fn fit_and_calibrate(
+pub(crate) fn fit_and_calibrate(
     settings: &FitSettings,
     series: &[SensorSeries<'_>],
 ) -> std::result::Result<(AssetBaseline, Calibration), BaselineError> {

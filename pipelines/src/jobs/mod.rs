@@ -10,6 +10,8 @@
 //!   manifest), written atomically.
 //! - [`backtest`]: `telltale backtest`, a walk-forward replay of fit and
 //!   scan over an archive, scored against its failure and maintenance records.
+//! - [`mod@rebaseline`]: learning an asset's baseline again from the onset
+//!   of an accepted process change (the service's re-baseline).
 //! - [`mod@evaluate`]: `telltale evaluate`, detection quality of suspicions
 //!   against ground-truth events (recall, verdict accuracy, delay, lead time,
 //!   false alarms per 100 asset-weeks).
@@ -27,6 +29,7 @@ pub mod backtest;
 pub mod evaluate;
 pub mod fit;
 pub mod naive;
+pub mod rebaseline;
 pub mod scan;
 pub mod store;
 pub mod workorders;
@@ -46,6 +49,7 @@ pub use fit::{
     run_fit,
 };
 pub use naive::{NaiveSettings, run_naive};
+pub use rebaseline::{RebaselineOutcome, RebaselineRequest, Relearnt, rebaseline};
 pub use scan::{ScanReport, ScanSettings, run_scan, scan_asset};
 pub use store::{Manifest, ManifestEntry, Store, StoredBaseline, StoredRole, StoredSensor};
 pub use workorders::{

@@ -3,6 +3,7 @@
 
 use crate::UsageError;
 use crate::serve::db::Db;
+use crate::serve::rebaseline::RebaselineConfig;
 use crate::serve::webhook::WebhookConfig;
 use crate::serve::window::WindowLimits;
 use crate::serve::{AppState, Limits, ServeConfig};
@@ -57,6 +58,19 @@ pub struct ServeArgs {
     /// First retry delay after a failed delivery, in milliseconds (doubles per attempt, at most 10 min)
     #[arg(long, default_value_t = 1000)]
     pub webhook_retry_ms: u64,
+    /// Archived history (Parquet file or directory) that re-baselines after an accepted process
+    /// change learn from; without it they wait (and say so)
+    #[arg(long, value_name = "H")]
+    pub history: Option<PathBuf>,
+    /// A re-baseline learns from at most this many days after the change's onset
+    #[arg(long, default_value_t = 7.0)]
+    pub rebaseline_learn_days: f64,
+    /// ... and waits until the history holds at least this many hours after the onset
+    #[arg(long, default_value_t = 24.0)]
+    pub rebaseline_min_hours: f64,
+    /// How often waiting re-baselines are tried again, in seconds
+    #[arg(long, default_value_t = 600)]
+    pub rebaseline_retry_s: u64,
 }
 
 impl ServeArgs {
@@ -137,8 +151,36 @@ impl ServeArgs {
                 })
             }
         };
+        if let Some(h) = &self.history
+            && !h.exists()
+        {
+            return Err(UsageError(format!(
+                "--history {}: no such file or directory; give the Parquet history that                  `telltale fit` read",
+                h.display()
+            )));
+        }
+        let hours = |x: f64| (x * 3_600_000.0).round() as i64;
+        if !(self.rebaseline_min_hours > 0.0
+            && self.rebaseline_learn_days * 24.0 >= self.rebaseline_min_hours
+            && self.rebaseline_learn_days <= 366.0)
+        {
+            return Err(UsageError(format!(
+                "--rebaseline-min-hours {} and --rebaseline-learn-days {}: need 0 < min hours <=                  learn days x 24, and learn days <= 366",
+                self.rebaseline_min_hours, self.rebaseline_learn_days
+            )));
+        }
+        if self.rebaseline_retry_s == 0 {
+            return Err(UsageError("--rebaseline-retry-s must be at least 1".to_owned()));
+        }
+        let rebaseline = RebaselineConfig {
+            history: self.history.clone(),
+            learn_ms: hours(self.rebaseline_learn_days * 24.0),
+            min_span_ms: hours(self.rebaseline_min_hours),
+            retry: Duration::from_secs(self.rebaseline_retry_s),
+        };
         Ok(ServeConfig {
             webhook,
+            rebaseline,
             store: self.store.clone(),
             db: db_path(self.db.as_ref(), &self.store),
             listen: self.listen,
@@ -179,8 +221,13 @@ pub(crate) fn run(args: &ServeArgs) -> anyhow::Result<()> {
         .enable_all()
         .build()
         .context("starting the async runtime")?;
-    rt.block_on(crate::serve::serve(state, cfg.listen, cfg.webhook.clone()))
-        .with_context(|| format!("serving on --listen {}", cfg.listen))?;
+    rt.block_on(crate::serve::serve(
+        state,
+        cfg.listen,
+        cfg.webhook.clone(),
+        cfg.rebaseline.clone(),
+    ))
+    .with_context(|| format!("serving on --listen {}", cfg.listen))?;
     tracing::info!("stopped");
     Ok(())
 }

@@ -8,7 +8,19 @@
 //!  suspicions(id, asset, sensor, class, mode, score, magnitude, onset_ms,
 //!             detected_ms, priority, record, status, first_scored, last_scored, times_scored)
 //!  feedback(seq, suspicion_id, received, key_id, verdict, note, work_order, idempotency_key)
+//!  outbox(seq, idempotency_key, suspicion_id, event, body, created, attempts, next_attempt_ms, ...)
+//!  rebaselines(seq, suspicion_id, feedback_seq, asset, sensor, onset_ms, state, attempts,
+//!              detail, version, created, updated)
+//!  baseline_versions(asset, version, created, reason, suspicion_id, sensor, from_ms, to_ms,
+//!                    detail, sha256, baseline)
 //! ```
+//!
+//! **Re-baselines.** A `process_change_accepted` feedback adds, in its own
+//! transaction, a pending re-baseline of the suspicion's asset and sensor
+//! from its onset (one per suspicion; a repeated acceptance adds none). The
+//! service's re-baseline worker does it ([`super::rebaseline`]) and keeps
+//! every baseline an asset has had in `baseline_versions`: version 1 is the
+//! fitted one found in the store, each re-baseline adds the next.
 //!
 //! **Durability.** The database runs in WAL mode with `synchronous=FULL`:
 //! every write is one transaction whose commit syncs the WAL to disk before
@@ -43,6 +55,9 @@ use std::path::{Path, PathBuf};
 use std::sync::{Mutex, MutexGuard};
 use telltale_pipelines::record::Suspicion;
 use telltale_pipelines::time::{format_time, from_millis};
+
+mod versions;
+pub use versions::{BaselineVersion, NewVersion, RebaselineRow};
 
 /// The schema migrations, in order; entry `i` takes version `i` to `i + 1`.
 pub const MIGRATIONS: &[&str] = &[
@@ -110,6 +125,36 @@ pub const MIGRATIONS: &[&str] = &[
         delivered TEXT
     );
     CREATE INDEX outbox_due ON outbox (delivered, next_attempt_ms);",
+    // 3: re-baselines asked for by accepted process changes, and baseline versions
+    "CREATE TABLE rebaselines (
+        seq INTEGER PRIMARY KEY AUTOINCREMENT,
+        suspicion_id TEXT NOT NULL UNIQUE REFERENCES suspicions (id),
+        feedback_seq INTEGER NOT NULL REFERENCES feedback (seq),
+        asset TEXT NOT NULL,
+        sensor TEXT,
+        onset_ms INTEGER NOT NULL,
+        state TEXT NOT NULL CHECK (state IN ('pending', 'done', 'failed')),
+        attempts INTEGER NOT NULL DEFAULT 0,
+        detail TEXT NOT NULL,
+        version INTEGER,
+        created TEXT NOT NULL,
+        updated TEXT NOT NULL
+    );
+    CREATE INDEX rebaselines_state ON rebaselines (state, seq);
+    CREATE TABLE baseline_versions (
+        asset TEXT NOT NULL,
+        version INTEGER NOT NULL,
+        created TEXT NOT NULL,
+        reason TEXT NOT NULL CHECK (reason IN ('fit', 'process_change_accepted')),
+        suspicion_id TEXT,
+        sensor TEXT,
+        from_ms INTEGER,
+        to_ms INTEGER,
+        detail TEXT NOT NULL,
+        sha256 TEXT NOT NULL,
+        baseline TEXT NOT NULL,
+        PRIMARY KEY (asset, version)
+    );",
 ];
 
 /// Errors of the database.
@@ -835,6 +880,9 @@ impl Db {
         let seq = tx.last_insert_rowid();
         tx.execute("UPDATE suspicions SET status = ?2 WHERE id = ?1", params![id, fb.verdict])
             .map_err(|e| self.err(e))?;
+        if fb.verdict == "process_change_accepted" {
+            versions::ask_rebaseline(&tx, id, seq, &received).map_err(|e| self.err(e))?;
+        }
         tx.commit().map_err(|e| self.err(e))?;
         Ok((
             FeedbackRecord {

@@ -21,6 +21,7 @@ pub mod db;
 pub mod error;
 pub mod metrics;
 mod openapi;
+pub mod rebaseline;
 pub mod webhook;
 pub mod window;
 
@@ -86,6 +87,7 @@ struct Shared {
     open: bool,
     notify_at: Option<f64>,
     baselines: Mutex<HashMap<String, (SystemTime, Arc<StoredBaseline>)>>,
+    rebaseline_wake: Arc<tokio::sync::Notify>,
 }
 
 /// State shared by the handlers.
@@ -108,6 +110,7 @@ impl AppState {
                 open,
                 notify_at,
                 baselines: Mutex::new(HashMap::new()),
+                rebaseline_wake: Arc::new(tokio::sync::Notify::new()),
             }),
         }
     }
@@ -115,6 +118,11 @@ impl AppState {
     /// The database.
     pub fn db(&self) -> &Db {
         &self.inner.db
+    }
+
+    /// Wakes the re-baseline worker (see [`rebaseline`]).
+    pub fn rebaseline_wake(&self) -> Arc<tokio::sync::Notify> {
+        Arc::clone(&self.inner.rebaseline_wake)
     }
 
     /// The asset's stored baseline, cached while its file is unchanged;
@@ -247,12 +255,28 @@ pub static ROUTES: &[RouteSpec] = &[
         path: "/v1/assets/{id}/baseline",
         scope: Some(Scope::Read),
         operation_id: "getBaseline",
-        summary: "The asset's stored baseline as written by telltale fit",
-        query: &[],
+        summary: "The asset's baseline now in the store, or a recorded earlier version",
+        query: &[(
+            "version",
+            "integer",
+            "a version number from /v1/assets/{id}/baselines (default: the one in the store)",
+        )],
         body: None,
         ok: &[(200, "application/json", "StoredBaseline")],
-        errors: &[401, 403, 404],
+        errors: &[401, 403, 404, 422],
         make: || get(get_baseline),
+    },
+    RouteSpec {
+        method: Method::GET,
+        path: "/v1/assets/{id}/baselines",
+        scope: Some(Scope::Read),
+        operation_id: "listBaselineVersions",
+        summary: "The asset's baseline versions: the fitted one and each re-baseline since",
+        query: &[],
+        body: None,
+        ok: &[(200, "application/json", "BaselineVersions")],
+        errors: &[401, 403, 404],
+        make: || get(list_baseline_versions),
     },
     RouteSpec {
         method: Method::GET,
@@ -720,8 +744,10 @@ async fn get_suspicion(
         };
         s.record.rank = db.rank_of(&s).map_err(db_error)?;
         let fb = db.feedback_of(&id).map_err(db_error)?;
+        let rebase = db.rebaseline_of(&id).map_err(db_error)?;
         let mut v = serde_json::to_value(&s).map_err(ApiError::internal)?;
         v["feedback"] = serde_json::to_value(fb).map_err(ApiError::internal)?;
+        v["rebaseline"] = serde_json::to_value(rebase).map_err(ApiError::internal)?;
         Ok(v)
     })
     .await?;
@@ -786,20 +812,20 @@ async fn post_feedback(
     let note = text_field(o, "note", true, 4000)?.unwrap_or_default();
     let work_order = text_field(o, "work_order", false, 200)?;
     let fb = NewFeedback { verdict, note, work_order, idempotency_key: idem };
-    let (rec, new, status) = blocking(move || {
+    let wake = state.rebaseline_wake();
+    let (rec, new, status, rebase) = blocking(move || {
         let (rec, new) =
             state.db().add_feedback(&id, &fb, caller.key_id.as_deref()).map_err(db_error)?;
         let status = state.db().suspicion(&id).map_err(db_error)?.map(|s| s.status);
-        Ok((rec, new, status))
+        let rebase = state.db().rebaseline_of(&id).map_err(db_error)?;
+        Ok((rec, new, status, rebase))
     })
     .await?;
     let mut body = json!({ "feedback": rec, "replayed": !new, "status": status });
     if rec.verdict == "process_change_accepted" {
-        body["rebaseline"] = json!({
-            "done": false,
-            "how": "this version records the acceptance only; re-fit the asset on data from the \
-                    onset on with `telltale fit --asset ID --from ONSET`"
-        });
+        // the re-baseline is done by the worker; GET /v1/suspicions/{id} shows its state
+        wake.notify_one();
+        body["rebaseline"] = serde_json::to_value(rebase).map_err(ApiError::internal)?;
     }
     let code = if new { StatusCode::CREATED } else { StatusCode::OK };
     Ok((code, Json(body)).into_response())
@@ -832,8 +858,36 @@ async fn list_assets(State(state): State<AppState>) -> Result<Response, ApiError
 async fn get_baseline(
     State(state): State<AppState>,
     UrlPath(id): UrlPath<String>,
+    Query(q): Query<HashMap<String, String>>,
 ) -> Result<Response, ApiError> {
+    if let Some(k) = q.keys().find(|k| k.as_str() != "version") {
+        return Err(ApiError::invalid(k.as_str(), format!("unknown parameter {k:?}; use version")));
+    }
+    let version = q
+        .get("version")
+        .map(|v| {
+            v.parse::<i64>().ok().filter(|n| *n >= 1).ok_or_else(|| {
+                ApiError::invalid(
+                    "version",
+                    format!("version {v:?}: give a version number (1, 2, ...) from the asset's /baselines"),
+                )
+            })
+        })
+        .transpose()?;
     let out = blocking(move || {
+        if let Some(n) = version {
+            let text = state.db().baseline_version_text(&id, n).map_err(db_error)?;
+            let Some(text) = text else {
+                return Err(ApiError::NotFound {
+                    what: "baseline version",
+                    detail: format!(
+                        "no version {n} of {id:?}'s baseline is recorded; GET \
+                         /v1/assets/{id}/baselines lists the versions"
+                    ),
+                });
+            };
+            return serde_json::from_str(&text).map_err(ApiError::internal);
+        }
         let Some(b) = state.baseline(&id)? else {
             return Err(ApiError::NotFound {
                 what: "asset",
@@ -843,6 +897,36 @@ async fn get_baseline(
             });
         };
         serde_json::to_value(&*b).map_err(ApiError::internal)
+    })
+    .await?;
+    Ok(Json(out).into_response())
+}
+
+async fn list_baseline_versions(
+    State(state): State<AppState>,
+    UrlPath(id): UrlPath<String>,
+) -> Result<Response, ApiError> {
+    let out = blocking(move || {
+        let path = state.inner.store.baseline_path(&id);
+        let current = std::fs::read(&path).ok();
+        let items = state.db().baseline_versions(&id).map_err(db_error)?;
+        if current.is_none() && items.is_empty() {
+            return Err(ApiError::NotFound {
+                what: "asset",
+                detail: format!(
+                    "no baseline for asset {id:?}; GET /v1/assets lists the assets with one"
+                ),
+            });
+        }
+        // the version whose file is in the store now (none: not recorded yet,
+        // until the asset's first re-baseline, or re-fitted since)
+        let sha = current.map(|b| {
+            use sha2::Digest;
+            sha2::Sha256::digest(&b).iter().map(|x| format!("{x:02x}")).collect::<String>()
+        });
+        let in_store =
+            items.iter().rev().find(|v| Some(&v.sha256) == sha.as_ref()).map(|v| v.version);
+        Ok(json!({ "asset": id, "in_store": in_store, "items": items }))
     })
     .await?;
     Ok(Json(out).into_response())
@@ -901,6 +985,8 @@ pub struct ServeConfig {
     pub limits: Limits,
     /// Outbound notification.
     pub webhook: Option<webhook::WebhookConfig>,
+    /// Re-baselines after accepted process changes.
+    pub rebaseline: rebaseline::RebaselineConfig,
 }
 
 /// Waits for ctrl-c or SIGTERM.
@@ -932,11 +1018,13 @@ pub async fn serve(
     state: AppState,
     listen: std::net::SocketAddr,
     hook: Option<webhook::WebhookConfig>,
+    rebase: rebaseline::RebaselineConfig,
 ) -> std::io::Result<()> {
     use std::io::Write;
     if let Some(cfg) = hook {
         webhook::spawn_worker(state.clone(), cfg)?;
     }
+    rebaseline::spawn_worker(state.clone(), rebase);
     let listener = tokio::net::TcpListener::bind(listen).await?;
     let addr = listener.local_addr()?;
     {

@@ -87,8 +87,35 @@ fn schemas() -> Value {
         "SuspicionDetail": {
             "allOf": [{"$ref": "#/components/schemas/Suspicion"}, {
                 "type": "object",
-                "properties": {"feedback": {"type": "array", "items": {"$ref": "#/components/schemas/Feedback"}}}
+                "properties": {
+                    "feedback": {"type": "array", "items": {"$ref": "#/components/schemas/Feedback"}},
+                    "rebaseline": {"oneOf": [{"$ref": "#/components/schemas/Rebaseline"}, {"type": "null"}]}
+                }
             }]
+        },
+        "Rebaseline": {
+            "type": "object",
+            "description": "the re-baseline an accepted process change asked for",
+            "properties": {
+                "suspicion_id": {"type": "string"}, "asset": {"type": "string"},
+                "sensor": {"type": ["string", "null"]}, "onset": time,
+                "state": {"type": "string", "enum": ["pending", "done", "failed"]},
+                "attempts": {"type": "integer"}, "detail": {"type": "string"},
+                "version": {"type": ["integer", "null"]}, "created": time, "updated": time
+            }
+        },
+        "BaselineVersions": {
+            "type": "object", "required": ["asset", "items"],
+            "properties": {
+                "asset": {"type": "string"},
+                "in_store": {"type": ["integer", "null"], "description": "the version now in the store"},
+                "items": {"type": "array", "items": {"type": "object", "properties": {
+                    "asset": {"type": "string"}, "version": {"type": "integer"}, "created": time,
+                    "reason": {"type": "string", "enum": ["fit", "process_change_accepted"]},
+                    "suspicion_id": {"type": ["string", "null"]}, "sensor": {"type": ["string", "null"]},
+                    "from": {"type": ["string", "null"]}, "to": {"type": ["string", "null"]},
+                    "detail": {"type": "string"}, "sha256": {"type": "string"}}}}
+            }
         },
         "FeedbackRequest": {
             "type": "object", "required": ["verdict", "note"], "additionalProperties": false,
@@ -104,7 +131,7 @@ fn schemas() -> Value {
                 "feedback": {"$ref": "#/components/schemas/Feedback"},
                 "replayed": {"type": "boolean", "description": "true: a repeat; nothing new was written"},
                 "status": {"type": ["string", "null"]},
-                "rebaseline": {"type": "object"}
+                "rebaseline": {"oneOf": [{"$ref": "#/components/schemas/Rebaseline"}, {"type": "null"}]}
             }
         },
         "AssetList": {
