@@ -6,14 +6,19 @@ use std::process::ExitCode;
 
 fn main() -> ExitCode {
     let cli = telltale::cli::Cli::parse();
-    telltale::logging::init(cli.verbose, cli.quiet);
+    let format = cli.log_format;
+    telltale::logging::init(cli.verbose, cli.quiet, format);
     match telltale::run(cli) {
         Ok(()) => ExitCode::SUCCESS,
         Err(err) => {
             if telltale::is_broken_pipe(&err) {
                 return ExitCode::SUCCESS;
             }
-            eprintln!("telltale: error: {err:#}");
+            if format == telltale::logging::LogFormat::Json {
+                tracing::error!(error = %format!("{err:#}"), exit_code = telltale::exit_code(&err), "telltale failed");
+            } else {
+                eprintln!("telltale: error: {err:#}");
+            }
             ExitCode::from(telltale::exit_code(&err))
         }
     }

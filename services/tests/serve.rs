@@ -1085,3 +1085,60 @@ fn accepting_a_process_change_re_baselines_the_sensor_or_asset_from_its_onset() 
     assert_eq!(now["fit_from"], wide["onset"]);
     assert_ne!(now["calibration"], Value::Null);
 }
+
+#[test]
+fn json_logs_are_one_object_per_line_with_time_level_and_request_route() {
+    let f = fixture();
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("t.db");
+    let mut child = std::process::Command::new(assert_cmd::cargo::cargo_bin("telltale"))
+        .args(["--log-format", "json", "-v", "serve", "--open", "--listen", "127.0.0.1:0"])
+        .arg("--store")
+        .arg(&f.store)
+        .arg("--db")
+        .arg(&db)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut line = String::new();
+    BufReader::new(child.stdout.take().unwrap()).read_line(&mut line).unwrap();
+    let base = line.trim().strip_prefix("listening on ").unwrap().to_owned();
+    assert_eq!(get(&format!("{base}/healthz"), None).status, 200);
+    let sent = std::process::Command::new("sh")
+        .args(["-c", &format!("kill -TERM {}", child.id())])
+        .status()
+        .unwrap();
+    assert!(sent.success());
+    let out = child.wait_with_output().unwrap();
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stderr).unwrap();
+    let lines: Vec<Value> = text
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap_or_else(|e| panic!("not JSON ({e}): {l}")))
+        .collect();
+    for l in &lines {
+        let t = l["timestamp"].as_str().unwrap_or_else(|| panic!("no timestamp: {l}"));
+        assert!(chrono::DateTime::parse_from_rfc3339(t).is_ok(), "timestamp {t}");
+        assert!(l["level"].is_string() && l["fields"]["message"].is_string(), "{l}");
+    }
+    let answered = lines
+        .iter()
+        .find(|l| l["fields"]["message"] == "answered")
+        .unwrap_or_else(|| panic!("no request line in {text}"));
+    assert_eq!(answered["span"]["route"], "/healthz", "{answered}");
+    assert_eq!(answered["fields"]["status"], 200, "{answered}");
+    assert!(lines.iter().any(|l| l["fields"]["message"] == "serving"), "{text}");
+    // a failure is a JSON line too, with the error and the exit status
+    let out = telltale()
+        .args(["--log-format", "json", "serve", "--store", "/nonexistent-store"])
+        .assert()
+        .code(2)
+        .get_output()
+        .stderr
+        .clone();
+    let last: Value = serde_json::from_str(String::from_utf8(out).unwrap().trim()).unwrap();
+    assert_eq!(last["level"], "ERROR");
+    assert!(last["fields"]["error"].as_str().unwrap().contains("--store"), "{last}");
+    assert_eq!(last["fields"]["exit_code"], 2);
+}

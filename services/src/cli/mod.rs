@@ -44,6 +44,10 @@ pub struct Cli {
     /// Only errors on stderr; no progress bars
     #[arg(short, long, global = true)]
     pub quiet: bool,
+    /// How log lines on stderr are written: text for people, json (one object per line) for log
+    /// collectors
+    #[arg(long, value_enum, default_value = "text", global = true)]
+    pub log_format: crate::logging::LogFormat,
     /// The job to run
     #[command(subcommand)]
     pub command: Command,
