@@ -1142,3 +1142,46 @@ fn json_logs_are_one_object_per_line_with_time_level_and_request_route() {
     assert!(last["fields"]["error"].as_str().unwrap().contains("--store"), "{last}");
     assert_eq!(last["fields"]["exit_code"], 2);
 }
+
+#[test]
+fn demo_serve_stores_the_scans_suspicions_and_serves_them() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("demo");
+    let mut child = std::process::Command::new(assert_cmd::cargo::cargo_bin("telltale"))
+        .args(["-q", "demo", "--preset", "small", "--serve", "127.0.0.1:0", "--out"])
+        .arg(&out)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::inherit())
+        .spawn()
+        .unwrap();
+    let mut lines = BufReader::new(child.stdout.take().unwrap()).lines();
+    let base = loop {
+        let l = lines.next().expect("demo ended before serving").unwrap();
+        if let Some(b) = l.strip_prefix("listening on ") {
+            break b.to_owned();
+        }
+    };
+    let text = std::fs::read_to_string(out.join("suspicions.jsonl")).unwrap();
+    let scanned: Vec<Value> = text.lines().map(|l| serde_json::from_str(l).unwrap()).collect();
+    assert!(!scanned.is_empty());
+    // open on loopback: no key needed; the ranking is the scan's
+    let list = get(&format!("{base}/v1/suspicions?limit=500"), None);
+    assert_eq!(list.status, 200, "{}", list.text);
+    let ids =
+        |v: &[Value]| v.iter().map(|s| s["id"].as_str().unwrap().to_owned()).collect::<Vec<_>>();
+    assert_eq!(ids(list.body["items"].as_array().unwrap()), ids(&scanned));
+    let h = get(&format!("{base}/healthz"), None);
+    assert_eq!(h.body["open"], true);
+    child.kill().unwrap();
+    child.wait().unwrap();
+    // serving needs the fitted store
+    let err = telltale()
+        .args(["demo", "--preset", "small", "--generate-only", "--serve", "127.0.0.1:0", "--out"])
+        .arg(dir.path().join("other"))
+        .assert()
+        .code(2)
+        .get_output()
+        .stderr
+        .clone();
+    assert!(String::from_utf8(err).unwrap().contains("--generate-only"));
+}

@@ -61,6 +61,11 @@ pub struct DemoArgs {
     /// Suspicions shown in the table on stdout (all are in suspicions.jsonl)
     #[arg(long, default_value_t = 15)]
     pub top: usize,
+    /// After the run, serve the demo's store over HTTP on this address, with the scan's
+    /// suspicions already stored and re-baselining from the demo history (loopback: no key;
+    /// any other address: a write key is created and printed once)
+    #[arg(long, value_name = "ADDR")]
+    pub serve: Option<std::net::SocketAddr>,
 }
 
 impl DemoArgs {
@@ -108,6 +113,14 @@ pub(crate) const REVIEW_FILE: &str = "review.html";
 
 pub(crate) fn run(args: &DemoArgs, _quiet: bool) -> anyhow::Result<()> {
     // Stage 1: check every setting before any work.
+    if args.serve.is_some() && args.generate_only {
+        return Err(UsageError(
+            "--serve needs the fitted store: drop --generate-only (or run `telltale serve` on a \
+             store of your own)"
+                .to_owned(),
+        )
+        .into());
+    }
     let params = args
         .params()
         .check()
@@ -254,7 +267,73 @@ fn fit_and_scan(args: &DemoArgs, summary: &telltale_datasets::FleetSummary) -> a
          procedures before acting."
     )?;
     out.flush()?;
-    Ok(())
+    drop(out);
+    match args.serve {
+        Some(addr) => serve_demo(addr, &store, &summary.history, &report.suspicions),
+        None => Ok(()),
+    }
+}
+
+/// `--serve`: stores the scan's suspicions in the demo's database (one
+/// scored-window row per asset over the scan span) and serves the store,
+/// with re-baselining from the demo history.
+fn serve_demo(
+    addr: std::net::SocketAddr,
+    store: &std::path::Path,
+    history: &std::path::Path,
+    found: &[Suspicion],
+) -> anyhow::Result<()> {
+    use crate::serve::db::{Db, Scope, WindowRecord};
+    use telltale_pipelines::jobs::Store;
+    use telltale_pipelines::jobs::scan::priority;
+    let db_file = super::serve::db_path(None, store);
+    let db = Db::open(&db_file).with_context(|| format!("opening {}", db_file.display()))?;
+    let baselines = Store::open(store)?;
+    let mut by_asset: BTreeMap<&str, Vec<(Suspicion, f64)>> = BTreeMap::new();
+    for s in found {
+        let crit = baselines.read_baseline(&s.asset).map_or(3, |b| b.criticality);
+        by_asset.entry(&s.asset).or_default().push((s.clone(), priority(s, crit)));
+    }
+    for (asset, items) in &by_asset {
+        let (from, to) = items.iter().fold((i64::MAX, i64::MIN), |(a, b), (s, _)| {
+            let d = s.detected.timestamp_millis();
+            (a.min(d), b.max(d + 1))
+        });
+        let w = WindowRecord {
+            asset: (*asset).to_owned(),
+            from_ms: from,
+            to_ms: to,
+            readings: 0,
+            key_id: None,
+        };
+        db.record_window(&w, items, None)
+            .with_context(|| format!("storing the scan's suspicions in {}", db_file.display()))?;
+    }
+    let open = addr.ip().is_loopback();
+    let mut argv: Vec<String> = ["serve", "--store"].map(String::from).to_vec();
+    argv.push(store.display().to_string());
+    argv.extend(["--listen".to_owned(), addr.to_string(), "--history".to_owned()]);
+    argv.push(history.display().to_string());
+    if open {
+        argv.push("--open".to_owned());
+    } else if db.active_keys()? == 0 {
+        let (info, key) = db.add_key("demo", Scope::Write)?;
+        println!(
+            "write key {} (shown once; `telltale keys list --db {}`): {key}",
+            info.id,
+            db_file.display()
+        );
+    }
+    drop(db);
+    tracing::info!(suspicions = found.len(), db = %db_file.display(), "serving the demo store");
+    #[derive(clap::Parser)]
+    struct Wrap {
+        #[command(flatten)]
+        serve: super::serve::ServeArgs,
+    }
+    let wrap = <Wrap as clap::Parser>::try_parse_from(&argv)
+        .map_err(|e| UsageError(format!("--serve {addr}: {e}")))?;
+    super::serve::run(&wrap.serve)
 }
 
 /// The ranked list as a table: one line per suspicion, the summary below it.
