@@ -1004,6 +1004,13 @@ fn accepting_a_process_change_re_baselines_the_sensor_or_asset_from_its_onset() 
         &std::fs::read(store.join("baselines").join(format!("{asset}.json"))).unwrap(),
     )
     .unwrap();
+    // before any re-baseline the fitted file is version 1, recorded when first asked for
+    let v = get(&srv.url(&format!("/v1/assets/{asset}/baselines")), Some(&key));
+    assert_eq!(v.status, 200, "{}", v.text);
+    assert_eq!(
+        (v.body["in_store"].as_i64(), v.body["items"].as_array().unwrap().len()),
+        (Some(1), 1)
+    );
     let (s, row, before, after) =
         accept_and_rebaseline(&srv, &key, &asset, |s| s["id"] == bias.id.as_str());
     assert_eq!(row["version"], 2, "{row}");

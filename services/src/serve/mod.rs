@@ -907,25 +907,20 @@ async fn list_baseline_versions(
     UrlPath(id): UrlPath<String>,
 ) -> Result<Response, ApiError> {
     let out = blocking(move || {
-        let path = state.inner.store.baseline_path(&id);
-        let current = std::fs::read(&path).ok();
-        let items = state.db().baseline_versions(&id).map_err(db_error)?;
-        if current.is_none() && items.is_empty() {
+        let Some(stored) = state.baseline(&id)? else {
             return Err(ApiError::NotFound {
                 what: "asset",
                 detail: format!(
                     "no baseline for asset {id:?}; GET /v1/assets lists the assets with one"
                 ),
             });
-        }
-        // the version whose file is in the store now (none: not recorded yet,
-        // until the asset's first re-baseline, or re-fitted since)
-        let sha = current.map(|b| {
-            use sha2::Digest;
-            sha2::Sha256::digest(&b).iter().map(|x| format!("{x:02x}")).collect::<String>()
-        });
+        };
+        // the file in the store is recorded as a version the first time it is seen
+        let path = state.inner.store.baseline_path(&id);
+        let bytes = std::fs::read(&path).map_err(ApiError::internal)?;
         let in_store =
-            items.iter().rev().find(|v| Some(&v.sha256) == sha.as_ref()).map(|v| v.version);
+            rebaseline::record_store_file(&state, &id, &bytes, &stored).map_err(db_error)?;
+        let items = state.db().baseline_versions(&id).map_err(db_error)?;
         Ok(json!({ "asset": id, "in_store": in_store, "items": items }))
     })
     .await?;

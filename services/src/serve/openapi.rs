@@ -108,7 +108,7 @@ fn schemas() -> Value {
             "type": "object", "required": ["asset", "items"],
             "properties": {
                 "asset": {"type": "string"},
-                "in_store": {"type": ["integer", "null"], "description": "the version now in the store"},
+                "in_store": {"type": "integer", "description": "the version now in the store (recorded when first seen)"},
                 "items": {"type": "array", "items": {"type": "object", "properties": {
                     "asset": {"type": "string"}, "version": {"type": "integer"}, "created": time,
                     "reason": {"type": "string", "enum": ["fit", "process_change_accepted"]},

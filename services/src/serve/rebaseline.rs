@@ -50,7 +50,8 @@ impl Default for RebaselineConfig {
     }
 }
 
-fn sha256_hex(bytes: &[u8]) -> String {
+/// SHA-256 of `bytes`, lower-case hex.
+pub(crate) fn sha256_hex(bytes: &[u8]) -> String {
     Sha256::digest(bytes).iter().map(|b| format!("{b:02x}")).collect()
 }
 
@@ -81,6 +82,27 @@ fn describe(r: &Relearnt, sensor: Option<&str>, from: &str, to: &str) -> String 
             format!("whole asset re-learnt and re-calibrated from {from} to {to}: {why}")
         }
     }
+}
+
+/// Records the baseline file now in the store (`bytes`, read as `stored`)
+/// as a version of `asset` unless it is the latest one; returns its number.
+pub(crate) fn record_store_file(
+    state: &AppState,
+    asset: &str,
+    bytes: &[u8],
+    stored: &telltale_pipelines::jobs::StoredBaseline,
+) -> Result<i64, super::db::DbError> {
+    let fitted = format!(
+        "found in the store (fit span {} .. {})",
+        stored.fit_from.as_deref().unwrap_or("start of history"),
+        stored.fit_until
+    );
+    state.db().record_store_version(
+        asset,
+        &sha256_hex(bytes),
+        &String::from_utf8_lossy(bytes),
+        &fitted,
+    )
 }
 
 /// Tries one pending re-baseline; every outcome is recorded on its row.
@@ -116,17 +138,7 @@ fn run_one(state: &AppState, cfg: &RebaselineConfig, row: &RebaselineRow) {
             return;
         }
     };
-    let fitted = format!(
-        "found in the store (fit span {} .. {})",
-        stored.fit_from.as_deref().unwrap_or("start of history"),
-        stored.fit_until
-    );
-    if let Err(e) = db.record_store_version(
-        &row.asset,
-        &sha256_hex(&bytes),
-        &String::from_utf8_lossy(&bytes),
-        &fitted,
-    ) {
+    if let Err(e) = record_store_file(state, &row.asset, &bytes, &stored) {
         tracing::error!(asset = %row.asset, error = %e, "baseline version not recorded");
         return;
     }
