@@ -89,21 +89,13 @@ impl BacktestArgs {
                 self.history.display()
             )));
         }
-        if self.threads == Some(0) {
-            return Err(UsageError(
-                "--threads must be at least 1; leave it out to use every core".to_owned(),
-            ));
-        }
+        let threads = super::threads_flag(self.threads)?;
         let from = self.from.as_deref().map(|v| super::time_flag_ms("from", v)).transpose()?;
         let to = self.to.as_deref().map(|v| super::time_flag_ms("to", v)).transpose()?;
-        if let (Some(f), Some(t)) = (from, to)
-            && f >= t
+        if let (Some(f), Some(t), Some(fs), Some(ts)) =
+            (from, to, self.from.as_deref(), self.to.as_deref())
         {
-            return Err(UsageError(format!(
-                "--from {} is not before --to {}; the replay span would be empty",
-                self.from.as_deref().unwrap_or(""),
-                self.to.as_deref().unwrap_or("")
-            )));
+            super::check_span("replay span", (fs, f), (ts, t))?;
         }
         let mut s = BacktestSettings::new(&self.history, Vec::new(), self.out.join("baselines"));
         s.registry = self.fleet.clone();
@@ -116,7 +108,7 @@ impl BacktestArgs {
         s.quiet_before_ms = ms("quiet-before-days", self.quiet_before_days * 24.0)?;
         s.quiet_after_ms = ms("quiet-after-days", self.quiet_after_days * 24.0)?;
         s.skip_bad_files = self.skip_bad_files;
-        s.threads = self.threads.unwrap_or(0);
+        s.threads = threads;
         Ok(s)
     }
 }

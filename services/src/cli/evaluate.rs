@@ -74,12 +74,11 @@ impl EvaluateArgs {
     fn settings(&self) -> Result<EvaluateSettings, UsageError> {
         let from = time_flag("from", &self.from)?;
         let to = time_flag("to", &self.to)?;
-        if from >= to {
-            return Err(UsageError(format!(
-                "--from {} is not before --to {}; the span [from, to) would be empty",
-                self.from, self.to
-            )));
-        }
+        super::check_span(
+            "span",
+            (&self.from, from.timestamp_millis()),
+            (&self.to, to.timestamp_millis()),
+        )?;
         let mut s = EvaluateSettings::new(from, to);
         s.grace = hours_flag("grace-hours", self.grace_hours)?;
         s.onset_tolerance = hours_flag("onset-tolerance-hours", self.onset_tolerance_hours)?;

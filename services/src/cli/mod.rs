@@ -101,6 +101,50 @@ pub(crate) fn time_flag_ms(flag: &str, value: &str) -> Result<i64, UsageError> {
         .map_err(|e| UsageError(format!("--{flag}: {e}")))
 }
 
+/// Checks that `--from` is before `--to` (both epoch ms); `span` names the
+/// span in the message ("scan span", "report period", ...).
+pub(crate) fn check_span(span: &str, from: (&str, i64), to: (&str, i64)) -> Result<(), UsageError> {
+    if from.1 >= to.1 {
+        return Err(UsageError(format!(
+            "--from {} is not before --to {}; the {span} [from, to) would be empty",
+            from.0, to.0
+        )));
+    }
+    Ok(())
+}
+
+/// Checks that `--store` is an existing directory (written by `telltale fit`).
+pub(crate) fn check_store_flag(store: &std::path::Path) -> Result<(), UsageError> {
+    if !store.is_dir() {
+        return Err(UsageError(format!(
+            "--store {}: no such directory; run `telltale fit --store {}` first",
+            store.display(),
+            store.display()
+        )));
+    }
+    Ok(())
+}
+
+/// Checks `--threads` (`None`: every core) and returns the job's setting
+/// (`0`: every core).
+pub(crate) fn threads_flag(threads: Option<usize>) -> Result<usize, UsageError> {
+    if threads == Some(0) {
+        return Err(UsageError(
+            "--threads must be at least 1; leave it out to use every core".to_owned(),
+        ));
+    }
+    Ok(threads.unwrap_or(0))
+}
+
+/// Sizes rayon's global pool to `--threads` when given.
+pub(crate) fn size_global_pool(threads: Option<usize>) {
+    if let Some(n) = threads
+        && rayon::ThreadPoolBuilder::new().num_threads(n).build_global().is_err()
+    {
+        tracing::debug!("rayon's global pool was already set up");
+    }
+}
+
 /// Checks that an optional `--fleet` registry file exists.
 pub(crate) fn check_fleet_flag(fleet: Option<&PathBuf>) -> Result<(), UsageError> {
     match fleet {

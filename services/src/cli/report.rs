@@ -63,20 +63,9 @@ impl ReportArgs {
     pub(crate) fn settings(&self) -> Result<ReportSettings, UsageError> {
         let from = super::time_flag_ms("from", &self.from)?;
         let to = super::time_flag_ms("to", &self.to)?;
-        if from >= to {
-            return Err(UsageError(format!(
-                "--from {} is not before --to {}; the report period [from, to) would be empty",
-                self.from, self.to
-            )));
-        }
+        super::check_span("report period", (&self.from, from), (&self.to, to))?;
         super::check_fleet_flag(self.fleet.as_ref())?;
-        if !self.store.is_dir() {
-            return Err(UsageError(format!(
-                "--store {}: no such directory; run `telltale fit --store {}` first",
-                self.store.display(),
-                self.store.display()
-            )));
-        }
+        super::check_store_flag(&self.store)?;
         if let Some(dir) = &self.backtest
             && !dir.join("summary.json").is_file()
         {
@@ -85,17 +74,13 @@ impl ReportArgs {
                 dir.display()
             )));
         }
-        if self.threads == Some(0) {
-            return Err(UsageError(
-                "--threads must be at least 1; leave it out to use every core".to_owned(),
-            ));
-        }
+        let threads = super::threads_flag(self.threads)?;
         let mut s = ReportSettings::new(&self.history, &self.store, from, to);
         s.registry = self.fleet.clone();
         s.backtest = self.backtest.clone();
         s.panel_cap = self.panels;
         s.skip_bad_files = self.skip_bad_files;
-        s.threads = self.threads.unwrap_or(0);
+        s.threads = threads;
         Ok(s)
     }
 
@@ -128,11 +113,7 @@ pub(crate) fn write_file(path: &Path, text: &str) -> anyhow::Result<()> {
 pub(crate) fn run(args: &ReportArgs) -> anyhow::Result<()> {
     let settings = args.settings()?;
     let format = args.format();
-    if let Some(n) = args.threads
-        && rayon::ThreadPoolBuilder::new().num_threads(n).build_global().is_err()
-    {
-        tracing::debug!("rayon's global pool was already set up");
-    }
+    super::size_global_pool(args.threads);
     let started = std::time::Instant::now();
     let report = run_report(&settings).with_context(|| {
         format!("reporting {} against {}", args.history.display(), args.store.display())

@@ -61,29 +61,14 @@ impl ScanArgs {
     pub(crate) fn settings(&self) -> Result<ScanSettings, UsageError> {
         let from = super::time_flag_ms("from", &self.from)?;
         let to = super::time_flag_ms("to", &self.to)?;
-        if from >= to {
-            return Err(UsageError(format!(
-                "--from {} is not before --to {}; the scan span [from, to) would be empty",
-                self.from, self.to
-            )));
-        }
+        super::check_span("scan span", (&self.from, from), (&self.to, to))?;
         super::check_fleet_flag(self.fleet.as_ref())?;
-        if !self.store.is_dir() {
-            return Err(UsageError(format!(
-                "--store {}: no such directory; run `telltale fit --store {}` first",
-                self.store.display(),
-                self.store.display()
-            )));
-        }
-        if self.threads == Some(0) {
-            return Err(UsageError(
-                "--threads must be at least 1; leave it out to use every core".to_owned(),
-            ));
-        }
+        super::check_store_flag(&self.store)?;
+        let threads = super::threads_flag(self.threads)?;
         let mut s = ScanSettings::new(&self.history, &self.store, from, to);
         s.registry = self.fleet.clone();
         s.skip_bad_files = self.skip_bad_files;
-        s.threads = self.threads.unwrap_or(0);
+        s.threads = threads;
         Ok(s)
     }
 
@@ -150,11 +135,7 @@ pub(crate) fn log_report(r: &ScanReport) {
 pub(crate) fn run(args: &ScanArgs) -> anyhow::Result<()> {
     let settings = args.settings()?;
     let format = args.format()?;
-    if let Some(n) = args.threads
-        && rayon::ThreadPoolBuilder::new().num_threads(n).build_global().is_err()
-    {
-        tracing::debug!("rayon's global pool was already set up");
-    }
+    super::size_global_pool(args.threads);
     if args.out.is_none() && format == FileFormat::Parquet {
         tracing::info!("writing Parquet to stdout; redirect it to a file");
     }
