@@ -26,7 +26,7 @@ fn column<'a>(b: &'a RecordBatch, name: &str) -> Option<&'a ArrayRef> {
     b.schema().index_of(name).ok().map(|i| b.column(i))
 }
 
-fn strings(a: &ArrayRef, field: &str) -> Result<Vec<Option<String>>, ApiError> {
+fn strings<'a>(a: &'a ArrayRef, field: &str) -> Result<Vec<Option<&'a str>>, ApiError> {
     let bad = || {
         ApiError::invalid(
             field,
@@ -36,16 +36,15 @@ fn strings(a: &ArrayRef, field: &str) -> Result<Vec<Option<String>>, ApiError> {
             ),
         )
     };
+    // borrowed from the batch: no string is copied
     Ok(match a.data_type() {
-        DataType::Utf8 => a.as_string::<i32>().iter().map(|s| s.map(str::to_owned)).collect(),
-        DataType::LargeUtf8 => a.as_string::<i64>().iter().map(|s| s.map(str::to_owned)).collect(),
+        DataType::Utf8 => a.as_string::<i32>().iter().collect(),
+        DataType::LargeUtf8 => a.as_string::<i64>().iter().collect(),
         DataType::Dictionary(_, v) if **v == DataType::Utf8 => {
             let d = a.as_any_dictionary_opt().ok_or_else(bad)?;
             let values = d.values().as_string::<i32>();
             let keys = d.normalized_keys();
-            (0..a.len())
-                .map(|i| (!a.is_null(i)).then(|| values.value(keys[i]).to_owned()))
-                .collect()
+            (0..a.len()).map(|i| (!a.is_null(i)).then(|| values.value(keys[i]))).collect()
         }
         _ => return Err(bad()),
     })
@@ -106,7 +105,7 @@ fn qualities(a: Option<&ArrayRef>, n: usize) -> Result<Vec<bool>, ApiError> {
         }
         DataType::Utf8 | DataType::LargeUtf8 | DataType::Dictionary(..) => strings(a, "quality")?
             .into_iter()
-            .map(|q| match q.as_deref() {
+            .map(|q| match q {
                 None | Some("good") => Ok(true),
                 Some("uncertain" | "bad") => Ok(false),
                 Some(other) => Err(ApiError::invalid(
@@ -169,7 +168,7 @@ pub fn parse_arrow(
         let good = qualities(column(&b, "quality"), b.num_rows())?;
         for i in 0..b.num_rows() {
             let r = row + i;
-            let s = sensor[i].as_deref().filter(|s| !s.is_empty()).ok_or_else(|| {
+            let s = sensor[i].filter(|s| !s.is_empty()).ok_or_else(|| {
                 ApiError::invalid(
                     format!("rows[{r}].sensor"),
                     format!("rows[{r}].sensor is null or empty"),

@@ -23,8 +23,11 @@
 //! fitted one found in the store, each re-baseline adds the next.
 //!
 //! **Durability.** The database runs in WAL mode with `synchronous=FULL`:
-//! every write is one transaction whose commit syncs the WAL to disk before
-//! the call returns, and the service answers only after that. An
+//! every write is committed in a transaction whose commit syncs the WAL to
+//! disk before the call returns, and the service answers only after that.
+//! Scored windows arriving together share one transaction and one sync
+//! (group commit, see [`Db::record_window`]); each call still returns only
+//! after the commit holding its own window has returned. An
 //! acknowledged window, suspicion, feedback or key therefore survives a
 //! crash of the process and, as far as the disk honours `fsync`, a loss of
 //! power.
@@ -52,7 +55,7 @@ use rusqlite::{Connection, OptionalExtension, params};
 use serde::Serialize;
 use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
-use std::sync::{Mutex, MutexGuard};
+use std::sync::{Arc, Mutex, MutexGuard};
 use telltale_pipelines::record::Suspicion;
 use telltale_pipelines::time::{format_time, from_millis};
 
@@ -397,6 +400,34 @@ pub struct Db {
     // one connection writes; the other reads (WAL lets it read while the writer commits)
     writer: Mutex<Connection>,
     reader: Mutex<Connection>,
+    // scored windows waiting for the next group commit (see record_window)
+    queued: Mutex<Vec<QueuedWindow>>,
+}
+
+/// What one queued window gets back from the group commit.
+type WindowResult = rusqlite::Result<Vec<StoredSuspicion>>;
+
+/// A scored window waiting for the group commit.
+#[derive(Debug)]
+struct QueuedWindow {
+    w: WindowRecord,
+    found: Vec<(Suspicion, f64)>,
+    notify_at: Option<f64>,
+    // filled in only after the commit that holds the window has returned
+    done: Arc<Mutex<Option<WindowResult>>>,
+}
+
+/// The same SQLite error again, for each window of a failed group commit.
+fn copy_error(e: &rusqlite::Error) -> rusqlite::Error {
+    match e {
+        rusqlite::Error::SqliteFailure(code, msg) => {
+            rusqlite::Error::SqliteFailure(*code, msg.clone())
+        }
+        other => rusqlite::Error::SqliteFailure(
+            rusqlite::ffi::Error::new(rusqlite::ffi::SQLITE_ERROR),
+            Some(other.to_string()),
+        ),
+    }
 }
 
 /// Time now, RFC 3339 with milliseconds.
@@ -415,9 +446,10 @@ fn random_hex(n: usize) -> Result<String, DbError> {
     Ok(buf.iter().map(|b| format!("{b:02x}")).collect())
 }
 
-fn lock(m: &Mutex<Connection>) -> MutexGuard<'_, Connection> {
-    // a panic while holding the lock leaves no half transaction behind
-    // (SQLite rolls it back), so the connection is still usable
+fn lock<T>(m: &Mutex<T>) -> MutexGuard<'_, T> {
+    // a panic while holding a connection's lock leaves no half transaction
+    // behind (SQLite rolls it back), so the connection is still usable; a
+    // queued window whose commit panicked is answered with an error
     m.lock().unwrap_or_else(std::sync::PoisonError::into_inner)
 }
 
@@ -441,7 +473,12 @@ impl Db {
         Self::migrate(&path, &writer)?;
         let reader = Connection::open(&path).map_err(e)?;
         reader.execute_batch("PRAGMA busy_timeout = 5000; PRAGMA query_only = ON;").map_err(e)?;
-        Ok(Db { path, writer: Mutex::new(writer), reader: Mutex::new(reader) })
+        Ok(Db {
+            path,
+            writer: Mutex::new(writer),
+            reader: Mutex::new(reader),
+            queued: Mutex::new(Vec::new()),
+        })
     }
 
     /// The database file.
@@ -590,26 +627,92 @@ impl Db {
     }
 
     /// Stores one scored window and merges its suspicions (with their
-    /// ranking priorities) into the episodes, in one transaction committed
-    /// before returning. Returns the stored suspicions in the given order.
+    /// ranking priorities) into the episodes; returns the stored suspicions
+    /// in the given order, once the transaction holding them is committed.
     /// With `notify_at`, a suspicion first stored with a score at or above
     /// it (`new`), or stored before below it and now at or above it
     /// (`escalated`), gets a webhook row in the outbox, in the same
     /// transaction; the idempotency key `ID:EVENT` keeps it to one row.
     ///
+    /// **Group commit.** Concurrent calls share a commit: each call queues
+    /// its window, and whichever call holds the writer next writes every
+    /// queued window, each under its own savepoint (a failing window is
+    /// rolled back alone), then commits them in one transaction, so one
+    /// WAL sync covers them all. A call returns only after the commit that
+    /// holds its window has returned, so what it returns is on disk.
+    ///
     /// # Errors
-    /// [`DbError::Sqlite`].
+    /// [`DbError::Sqlite`]; when the shared commit fails, every window in it
+    /// gets the error and none is stored.
     pub fn record_window(
         &self,
         w: &WindowRecord,
         found: &[(Suspicion, f64)],
         notify_at: Option<f64>,
     ) -> Result<Vec<StoredSuspicion>, DbError> {
-        let now = now_text();
+        let done: Arc<Mutex<Option<WindowResult>>> = Arc::new(Mutex::new(None));
+        lock(&self.queued).push(QueuedWindow {
+            w: w.clone(),
+            found: found.to_vec(),
+            notify_at,
+            done: Arc::clone(&done),
+        });
         let mut c = lock(&self.writer);
-        let tx = c.transaction().map_err(|e| self.err(e))?;
+        // the call that held the writer before may have committed this one
+        if let Some(r) = lock(&done).take() {
+            return r.map_err(|e| self.err(e));
+        }
+        let batch = std::mem::take(&mut *lock(&self.queued));
+        Self::commit_windows(&mut c, &batch);
+        drop(c);
+        lock(&done)
+            .take()
+            .unwrap_or_else(|| {
+                Err(rusqlite::Error::SqliteFailure(
+                    rusqlite::ffi::Error::new(rusqlite::ffi::SQLITE_ABORT),
+                    Some("the window was dropped unwritten; send it again".to_owned()),
+                ))
+            })
+            .map_err(|e| self.err(e))
+    }
+
+    /// Writes `batch` in one transaction (a savepoint per window) and
+    /// commits it; then, and only then, hands every window its result.
+    fn commit_windows(c: &mut Connection, batch: &[QueuedWindow]) {
+        let fail_all = |batch: &[QueuedWindow], e: &rusqlite::Error| {
+            for q in batch {
+                *lock(&q.done) = Some(Err(copy_error(e)));
+            }
+        };
+        let mut tx = match c.transaction() {
+            Ok(tx) => tx,
+            Err(e) => return fail_all(batch, &e),
+        };
+        let mut results = Vec::with_capacity(batch.len());
+        for q in batch {
+            let one = tx.savepoint().and_then(|sp| {
+                let out = Self::window_rows(&sp, q)?;
+                sp.commit()?;
+                Ok(out)
+            });
+            results.push(one);
+        }
+        match tx.commit() {
+            Ok(()) => {
+                for (q, r) in batch.iter().zip(results) {
+                    *lock(&q.done) = Some(r);
+                }
+            }
+            Err(e) => fail_all(batch, &e),
+        }
+    }
+
+    /// The rows of one queued window, inside the caller's transaction.
+    fn window_rows(c: &Connection, q: &QueuedWindow) -> rusqlite::Result<Vec<StoredSuspicion>> {
+        let (w, found, notify_at) = (&q.w, &q.found, q.notify_at);
+        let now = now_text();
         let ids: Vec<&str> = found.iter().map(|(s, _)| s.id.as_str()).collect();
-        tx.execute(
+        c.execute(
             "INSERT INTO windows (received, key_id, asset, from_ms, to_ms, readings, suspicion_ids)
              VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7)",
             params![
@@ -621,17 +724,15 @@ impl Db {
                 w.readings as i64,
                 serde_json::to_string(&ids).unwrap_or_default()
             ],
-        )
-        .map_err(|e| self.err(e))?;
+        )?;
         for (s, priority) in found {
-            let old: Option<(i64, f64)> = tx
+            let old: Option<(i64, f64)> = c
                 .query_row(
                     "SELECT detected_ms, score FROM suspicions WHERE id = ?1",
                     [&s.id],
                     |r| Ok((r.get(0)?, r.get(1)?)),
                 )
-                .optional()
-                .map_err(|e| self.err(e))?;
+                .optional()?;
             let mut rec = s.clone();
             rec.rank = 0;
             let detected_ms = match old {
@@ -653,17 +754,16 @@ impl Db {
                     "idempotency_key": key,
                     "suspicion": &rec,
                 });
-                tx.execute(
+                c.execute(
                     "INSERT OR IGNORE INTO outbox (idempotency_key, suspicion_id, event, body,
                          created, next_attempt_ms) VALUES (?1, ?2, ?3, ?4, ?5, 0)",
                     params![key, rec.id, event, body.to_string(), now],
-                )
-                .map_err(|e| self.err(e))?;
+                )?;
             }
             rec.detected = from_millis(detected_ms);
             let json = serde_json::to_string(&rec)
-                .map_err(|e| self.err(rusqlite::Error::ToSqlConversionFailure(Box::new(e))))?;
-            tx.execute(
+                .map_err(|e| rusqlite::Error::ToSqlConversionFailure(Box::new(e)))?;
+            c.execute(
                 "INSERT INTO suspicions (id, asset, sensor, class, mode, score, magnitude, onset_ms,
                      detected_ms, priority, record, first_scored, last_scored)
                  VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?12)
@@ -686,15 +786,14 @@ impl Db {
                     now
                 ],
             )
-            .map_err(|e| self.err(e))?;
+            ?;
         }
         let mut out = Vec::with_capacity(found.len());
         for (s, _) in found {
-            if let Some(x) = Self::get(&tx, &s.id).map_err(|e| self.err(e))? {
+            if let Some(x) = Self::get(c, &s.id)? {
                 out.push(x);
             }
         }
-        tx.commit().map_err(|e| self.err(e))?;
         Ok(out)
     }
 
@@ -1082,6 +1181,39 @@ mod tests {
         let page = db.list(&Filter::default(), None, 10).unwrap();
         assert_eq!(page.items.len(), 1);
         assert_eq!(db.windows().unwrap(), 2);
+    }
+
+    #[test]
+    fn concurrent_windows_share_commits_and_each_gets_its_own_result() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("t.db");
+        let db = Db::open(&p).unwrap();
+        let a = sus("p1", 1_000, 5_000, 0.5);
+        // 8 threads x 25 windows: half re-score one episode, half bring their own
+        std::thread::scope(|sc| {
+            for t in 0..8i64 {
+                let (db, a) = (&db, &a);
+                sc.spawn(move || {
+                    for i in 0..25i64 {
+                        let s =
+                            if t % 2 == 0 { a.clone() } else { sus("p2", t * 100 + i, 9_000, 0.6) };
+                        let got =
+                            db.record_window(&window("p"), &[(s.clone(), 0.5)], None).unwrap();
+                        assert_eq!(got.len(), 1);
+                        assert_eq!(got[0].record.id, s.id);
+                    }
+                });
+            }
+        });
+        assert_eq!(db.windows().unwrap(), 200);
+        // 4 threads x 25 re-scorings of one episode, counted exactly once each
+        assert_eq!(db.suspicion(&a.id).unwrap().unwrap().times_scored, 100);
+        assert_eq!(db.list(&Filter::default(), None, 500).unwrap().items.len(), 1 + 100);
+        // and all of it is in the file, read by a fresh connection
+        drop(db);
+        let c = Connection::open(&p).unwrap();
+        let n: i64 = c.query_row("SELECT COUNT(*) FROM windows", [], |r| r.get(0)).unwrap();
+        assert_eq!(n, 200);
     }
 
     #[test]

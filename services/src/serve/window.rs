@@ -18,7 +18,11 @@
 
 use super::error::ApiError;
 use chrono::DateTime;
+use serde::Deserialize;
+use serde::de::value::{MapAccessDeserializer, SeqAccessDeserializer};
+use serde::de::{DeserializeSeed, Deserializer, IgnoredAny, MapAccess, SeqAccess, Visitor};
 use serde_json::Value;
+use std::borrow::Cow;
 use std::collections::BTreeMap;
 
 /// Limits of one scoring request.
@@ -59,12 +63,314 @@ pub struct Window {
 }
 
 pub(crate) fn time_field(v: &Value, field: &str) -> Result<i64, ApiError> {
-    let s = v.as_str().ok_or_else(|| {
-        ApiError::invalid(field, format!("{field} must be an RFC 3339 time string, got {v}"))
-    })?;
+    time_of(&Lite::of(v), &|| field.to_owned())
+}
+
+/// A JSON value as the window parser reads it: scalars borrowed from the
+/// body where they can be, arrays and objects (always an error here) whole.
+/// Parsing into this rather than into [`Value`] spares a map and owned
+/// strings per reading; [`Lite::to_value`] gives back the [`Value`], so
+/// error messages quote the input exactly as before.
+#[derive(Debug, Clone, PartialEq)]
+enum Lite<'a> {
+    Null,
+    Bool(bool),
+    Num(serde_json::Number),
+    Str(Cow<'a, str>),
+    Other(Value),
+}
+
+impl<'a> Lite<'a> {
+    fn of(v: &'a Value) -> Lite<'a> {
+        match v {
+            Value::Null => Lite::Null,
+            Value::Bool(b) => Lite::Bool(*b),
+            Value::Number(n) => Lite::Num(n.clone()),
+            Value::String(s) => Lite::Str(Cow::Borrowed(s)),
+            other => Lite::Other(other.clone()),
+        }
+    }
+
+    fn to_value(&self) -> Value {
+        match self {
+            Lite::Null => Value::Null,
+            Lite::Bool(b) => Value::Bool(*b),
+            Lite::Num(n) => Value::Number(n.clone()),
+            Lite::Str(s) => Value::String(s.to_string()),
+            Lite::Other(v) => v.clone(),
+        }
+    }
+
+    fn is_null(&self) -> bool {
+        matches!(self, Lite::Null)
+    }
+}
+
+impl std::fmt::Display for Lite<'_> {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        self.to_value().fmt(f)
+    }
+}
+
+struct LiteVisitor;
+
+impl<'de> Visitor<'de> for LiteVisitor {
+    type Value = Lite<'de>;
+    fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("any JSON value")
+    }
+    fn visit_unit<E: serde::de::Error>(self) -> Result<Lite<'de>, E> {
+        Ok(Lite::Null)
+    }
+    fn visit_none<E: serde::de::Error>(self) -> Result<Lite<'de>, E> {
+        Ok(Lite::Null)
+    }
+    fn visit_bool<E: serde::de::Error>(self, v: bool) -> Result<Lite<'de>, E> {
+        Ok(Lite::Bool(v))
+    }
+    fn visit_i64<E: serde::de::Error>(self, v: i64) -> Result<Lite<'de>, E> {
+        Ok(Lite::Num(v.into()))
+    }
+    fn visit_u64<E: serde::de::Error>(self, v: u64) -> Result<Lite<'de>, E> {
+        Ok(Lite::Num(v.into()))
+    }
+    fn visit_f64<E: serde::de::Error>(self, v: f64) -> Result<Lite<'de>, E> {
+        // serde_json gives only finite numbers
+        Ok(serde_json::Number::from_f64(v).map_or(Lite::Null, Lite::Num))
+    }
+    fn visit_borrowed_str<E: serde::de::Error>(self, v: &'de str) -> Result<Lite<'de>, E> {
+        Ok(Lite::Str(Cow::Borrowed(v)))
+    }
+    fn visit_str<E: serde::de::Error>(self, v: &str) -> Result<Lite<'de>, E> {
+        Ok(Lite::Str(Cow::Owned(v.to_owned())))
+    }
+    fn visit_string<E: serde::de::Error>(self, v: String) -> Result<Lite<'de>, E> {
+        Ok(Lite::Str(Cow::Owned(v)))
+    }
+    fn visit_seq<A: SeqAccess<'de>>(self, seq: A) -> Result<Lite<'de>, A::Error> {
+        Value::deserialize(SeqAccessDeserializer::new(seq)).map(Lite::Other)
+    }
+    fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<Lite<'de>, A::Error> {
+        Value::deserialize(MapAccessDeserializer::new(map)).map(Lite::Other)
+    }
+}
+
+impl<'de> Deserialize<'de> for Lite<'de> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        d.deserialize_any(LiteVisitor)
+    }
+}
+
+/// An object key, borrowed from the body when it has no escapes.
+struct Key<'a>(Cow<'a, str>);
+
+impl<'de> Deserialize<'de> for Key<'de> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = Key<'de>;
+            fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str("a string")
+            }
+            fn visit_borrowed_str<E: serde::de::Error>(self, v: &'de str) -> Result<Key<'de>, E> {
+                Ok(Key(Cow::Borrowed(v)))
+            }
+            fn visit_str<E: serde::de::Error>(self, v: &str) -> Result<Key<'de>, E> {
+                Ok(Key(Cow::Owned(v.to_owned())))
+            }
+            fn visit_string<E: serde::de::Error>(self, v: String) -> Result<Key<'de>, E> {
+                Ok(Key(Cow::Owned(v)))
+            }
+        }
+        d.deserialize_str(V)
+    }
+}
+
+/// An object's entries in body order. A repeated key keeps its last value
+/// and the smallest unknown key is the one reported, as with [`Value`]'s
+/// sorted map.
+#[derive(Debug, Default)]
+struct Fields<'a, T>(Vec<(Cow<'a, str>, T)>);
+
+impl<'a, T> Fields<'a, T> {
+    fn get(&self, k: &str) -> Option<&T> {
+        self.0.iter().rev().find(|(n, _)| n == k).map(|(_, v)| v)
+    }
+
+    fn unknown(&self, known: &[&str]) -> Option<&str> {
+        self.0.iter().map(|(n, _)| n.as_ref()).filter(|n| !known.contains(n)).min()
+    }
+}
+
+/// One element of `readings`.
+#[derive(Debug)]
+enum Reading<'a> {
+    Object(Fields<'a, Lite<'a>>),
+    NotObject,
+}
+
+impl<'de> Deserialize<'de> for Reading<'de> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = Reading<'de>;
+            fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str("any JSON value")
+            }
+            fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<Reading<'de>, A::Error> {
+                let mut f = Vec::with_capacity(4);
+                while let Some(Key(k)) = map.next_key::<Key<'de>>()? {
+                    f.push((k, map.next_value::<Lite<'de>>()?));
+                }
+                Ok(Reading::Object(Fields(f)))
+            }
+            fn visit_seq<A: SeqAccess<'de>>(self, mut seq: A) -> Result<Reading<'de>, A::Error> {
+                while seq.next_element::<IgnoredAny>()?.is_some() {}
+                Ok(Reading::NotObject)
+            }
+            fn visit_unit<E: serde::de::Error>(self) -> Result<Reading<'de>, E> {
+                Ok(Reading::NotObject)
+            }
+            fn visit_bool<E: serde::de::Error>(self, _: bool) -> Result<Reading<'de>, E> {
+                Ok(Reading::NotObject)
+            }
+            fn visit_i64<E: serde::de::Error>(self, _: i64) -> Result<Reading<'de>, E> {
+                Ok(Reading::NotObject)
+            }
+            fn visit_u64<E: serde::de::Error>(self, _: u64) -> Result<Reading<'de>, E> {
+                Ok(Reading::NotObject)
+            }
+            fn visit_f64<E: serde::de::Error>(self, _: f64) -> Result<Reading<'de>, E> {
+                Ok(Reading::NotObject)
+            }
+            fn visit_str<E: serde::de::Error>(self, _: &str) -> Result<Reading<'de>, E> {
+                Ok(Reading::NotObject)
+            }
+        }
+        d.deserialize_any(V)
+    }
+}
+
+/// A top-level value: `readings` as an array of readings, anything else as a [`Lite`].
+#[derive(Debug)]
+enum TopValue<'a> {
+    Readings(Vec<Reading<'a>>),
+    Lite(Lite<'a>),
+}
+
+/// The body: an object's entries, or `None` for any other JSON value.
+struct Doc<'a>(Option<Fields<'a, TopValue<'a>>>);
+
+impl<'de> Deserialize<'de> for Doc<'de> {
+    fn deserialize<D: Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+        struct ReadingsOrLite;
+        impl<'de> DeserializeSeed<'de> for ReadingsOrLite {
+            type Value = TopValue<'de>;
+            fn deserialize<D: Deserializer<'de>>(self, d: D) -> Result<TopValue<'de>, D::Error> {
+                d.deserialize_any(self)
+            }
+        }
+        impl<'de> Visitor<'de> for ReadingsOrLite {
+            type Value = TopValue<'de>;
+            fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str("any JSON value")
+            }
+            fn visit_seq<A: SeqAccess<'de>>(self, mut seq: A) -> Result<TopValue<'de>, A::Error> {
+                let mut v = Vec::with_capacity(seq.size_hint().unwrap_or(0).min(1 << 16));
+                while let Some(r) = seq.next_element::<Reading<'de>>()? {
+                    v.push(r);
+                }
+                Ok(TopValue::Readings(v))
+            }
+            fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<TopValue<'de>, A::Error> {
+                LiteVisitor.visit_map(map).map(TopValue::Lite)
+            }
+            fn visit_unit<E: serde::de::Error>(self) -> Result<TopValue<'de>, E> {
+                Ok(TopValue::Lite(Lite::Null))
+            }
+            fn visit_bool<E: serde::de::Error>(self, v: bool) -> Result<TopValue<'de>, E> {
+                LiteVisitor.visit_bool(v).map(TopValue::Lite)
+            }
+            fn visit_i64<E: serde::de::Error>(self, v: i64) -> Result<TopValue<'de>, E> {
+                LiteVisitor.visit_i64(v).map(TopValue::Lite)
+            }
+            fn visit_u64<E: serde::de::Error>(self, v: u64) -> Result<TopValue<'de>, E> {
+                LiteVisitor.visit_u64(v).map(TopValue::Lite)
+            }
+            fn visit_f64<E: serde::de::Error>(self, v: f64) -> Result<TopValue<'de>, E> {
+                LiteVisitor.visit_f64(v).map(TopValue::Lite)
+            }
+            fn visit_borrowed_str<E: serde::de::Error>(
+                self,
+                v: &'de str,
+            ) -> Result<TopValue<'de>, E> {
+                LiteVisitor.visit_borrowed_str(v).map(TopValue::Lite)
+            }
+            fn visit_str<E: serde::de::Error>(self, v: &str) -> Result<TopValue<'de>, E> {
+                LiteVisitor.visit_str(v).map(TopValue::Lite)
+            }
+            fn visit_string<E: serde::de::Error>(self, v: String) -> Result<TopValue<'de>, E> {
+                LiteVisitor.visit_string(v).map(TopValue::Lite)
+            }
+        }
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = Doc<'de>;
+            fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+                f.write_str("any JSON value")
+            }
+            fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<Doc<'de>, A::Error> {
+                let mut f = Vec::with_capacity(4);
+                while let Some(Key(k)) = map.next_key::<Key<'de>>()? {
+                    let v = if k == "readings" {
+                        map.next_value_seed(ReadingsOrLite)?
+                    } else {
+                        TopValue::Lite(map.next_value::<Lite<'de>>()?)
+                    };
+                    f.push((k, v));
+                }
+                Ok(Doc(Some(Fields(f))))
+            }
+            fn visit_seq<A: SeqAccess<'de>>(self, mut seq: A) -> Result<Doc<'de>, A::Error> {
+                while seq.next_element::<IgnoredAny>()?.is_some() {}
+                Ok(Doc(None))
+            }
+            fn visit_unit<E: serde::de::Error>(self) -> Result<Doc<'de>, E> {
+                Ok(Doc(None))
+            }
+            fn visit_bool<E: serde::de::Error>(self, _: bool) -> Result<Doc<'de>, E> {
+                Ok(Doc(None))
+            }
+            fn visit_i64<E: serde::de::Error>(self, _: i64) -> Result<Doc<'de>, E> {
+                Ok(Doc(None))
+            }
+            fn visit_u64<E: serde::de::Error>(self, _: u64) -> Result<Doc<'de>, E> {
+                Ok(Doc(None))
+            }
+            fn visit_f64<E: serde::de::Error>(self, _: f64) -> Result<Doc<'de>, E> {
+                Ok(Doc(None))
+            }
+            fn visit_str<E: serde::de::Error>(self, _: &str) -> Result<Doc<'de>, E> {
+                Ok(Doc(None))
+            }
+        }
+        d.deserialize_any(V)
+    }
+}
+
+/// A time; `field` names it in an error (built only then).
+fn time_of(v: &Lite<'_>, field: &dyn Fn() -> String) -> Result<i64, ApiError> {
+    let Lite::Str(s) = v else {
+        let field = field();
+        return Err(ApiError::invalid(
+            &field,
+            format!("{field} must be an RFC 3339 time string, got {v}"),
+        ));
+    };
     DateTime::parse_from_rfc3339(s).map(|t| t.timestamp_millis()).map_err(|e| {
+        let field = field();
         ApiError::invalid(
-            field,
+            &field,
             format!(
                 "{field}: {s:?} is not an RFC 3339 time ({e}); write e.g. 2026-05-06T10:00:00Z"
             ),
@@ -72,22 +378,27 @@ pub(crate) fn time_field(v: &Value, field: &str) -> Result<i64, ApiError> {
     })
 }
 
-fn quality(v: Option<&Value>, field: &str) -> Result<bool, ApiError> {
+/// A quality flag; `field` names it in an error (built only then).
+fn quality(v: Option<&Lite<'_>>, field: &dyn Fn() -> String) -> Result<bool, ApiError> {
     match v {
-        None | Some(Value::Null) => Ok(true),
-        Some(Value::String(s)) => match s.as_str() {
+        None | Some(Lite::Null) => Ok(true),
+        Some(Lite::Str(s)) => match s.as_ref() {
             "good" => Ok(true),
             "uncertain" | "bad" => Ok(false),
-            _ => Err(ApiError::invalid(
-                field,
-                format!("{field}: {s:?} is not a quality; use good, uncertain or bad"),
-            )),
+            _ => {
+                let field = field();
+                Err(ApiError::invalid(
+                    &field,
+                    format!("{field}: {s:?} is not a quality; use good, uncertain or bad"),
+                ))
+            }
         },
-        Some(Value::Number(n)) if n.as_u64().is_some_and(|q| q <= 255) => Ok(n.as_u64() == Some(0)),
+        Some(Lite::Num(n)) if n.as_u64().is_some_and(|q| q <= 255) => Ok(n.as_u64() == Some(0)),
         Some(other) => Err(ApiError::invalid(
-            field,
+            field(),
             format!(
-                "{field}: {other} is not a quality; use good, uncertain, bad or 0..255 (0 = good)"
+                "{}: {other} is not a quality; use good, uncertain, bad or 0..255 (0 = good)",
+                field()
             ),
         )),
     }
@@ -99,25 +410,29 @@ fn quality(v: Option<&Value>, field: &str) -> Result<bool, ApiError> {
 /// [`ApiError`] 400 when the body is not JSON, 422 naming the field for
 /// anything else wrong.
 pub fn parse_json(body: &[u8], lim: &WindowLimits) -> Result<Window, ApiError> {
-    let doc: Value = serde_json::from_slice(body).map_err(|e| {
+    let doc: Doc<'_> = serde_json::from_slice(body).map_err(|e| {
         ApiError::bad_request(
             "body",
             format!("the body is not valid JSON ({e}); send a JSON object"),
         )
     })?;
-    let obj = doc.as_object().ok_or_else(|| {
+    let obj = doc.0.ok_or_else(|| {
         ApiError::invalid("body", "the body must be a JSON object with asset and readings")
     })?;
-    for k in obj.keys() {
-        if !["asset", "from", "to", "readings"].contains(&k.as_str()) {
-            return Err(ApiError::invalid(
-                k.as_str(),
-                format!("unknown field {k:?}; a window has asset, from, to and readings"),
-            ));
-        }
+    if let Some(k) = obj.unknown(&["asset", "from", "to", "readings"]) {
+        return Err(ApiError::invalid(
+            k,
+            format!("unknown field {k:?}; a window has asset, from, to and readings"),
+        ));
     }
-    let asset = match obj.get("asset") {
-        Some(Value::String(s)) if !s.is_empty() => s.clone(),
+    let lite = |k: &str| match obj.get(k) {
+        None => None,
+        Some(TopValue::Lite(l)) => Some(Cow::Borrowed(l)),
+        // only `readings` is read as an array of readings
+        Some(TopValue::Readings(_)) => Some(Cow::Owned(Lite::Other(Value::Array(Vec::new())))),
+    };
+    let asset = match lite("asset").as_deref() {
+        Some(Lite::Str(s)) if !s.is_empty() => s.to_string(),
         Some(other) => {
             return Err(ApiError::invalid(
                 "asset",
@@ -131,21 +446,29 @@ pub fn parse_json(body: &[u8], lim: &WindowLimits) -> Result<Window, ApiError> {
             ));
         }
     };
-    let from =
-        obj.get("from").filter(|v| !v.is_null()).map(|v| time_field(v, "from")).transpose()?;
-    let to = obj.get("to").filter(|v| !v.is_null()).map(|v| time_field(v, "to")).transpose()?;
-    let readings = obj
-        .get("readings")
-        .ok_or_else(|| {
-            ApiError::invalid(
+    let from = lite("from")
+        .filter(|v| !v.is_null())
+        .map(|v| time_of(&v, &|| "from".to_owned()))
+        .transpose()?;
+    let to = lite("to")
+        .filter(|v| !v.is_null())
+        .map(|v| time_of(&v, &|| "to".to_owned()))
+        .transpose()?;
+    let readings = match obj.get("readings") {
+        None => {
+            return Err(ApiError::invalid(
                 "readings",
                 "readings is missing; send an array of {sensor, ts, value}",
-            )
-        })?
-        .as_array()
-        .ok_or_else(|| {
-            ApiError::invalid("readings", "readings must be an array of {sensor, ts, value}")
-        })?;
+            ));
+        }
+        Some(TopValue::Lite(_)) => {
+            return Err(ApiError::invalid(
+                "readings",
+                "readings must be an array of {sensor, ts, value}",
+            ));
+        }
+        Some(TopValue::Readings(r)) => r,
+    };
     if readings.is_empty() {
         return Err(ApiError::invalid("readings", "readings is empty; send at least one reading"));
     }
@@ -162,25 +485,20 @@ pub fn parse_json(body: &[u8], lim: &WindowLimits) -> Result<Window, ApiError> {
     let mut c = Collector::default();
     for (i, r) in readings.iter().enumerate() {
         let at = |f: &str| format!("readings[{i}].{f}");
-        let o = r.as_object().ok_or_else(|| {
-            ApiError::invalid(
+        let Reading::Object(o) = r else {
+            return Err(ApiError::invalid(
                 format!("readings[{i}]"),
                 format!("readings[{i}] must be an object {{sensor, ts, value}}"),
-            )
-        })?;
-        for k in o.keys() {
-            if !["sensor", "ts", "value", "quality"].contains(&k.as_str()) {
-                return Err(ApiError::invalid(
-                    at(k),
-                    format!(
-                        "{}: unknown field; a reading has sensor, ts, value and quality",
-                        at(k)
-                    ),
-                ));
-            }
+            ));
+        };
+        if let Some(k) = o.unknown(&["sensor", "ts", "value", "quality"]) {
+            return Err(ApiError::invalid(
+                at(k),
+                format!("{}: unknown field; a reading has sensor, ts, value and quality", at(k)),
+            ));
         }
         let sensor = match o.get("sensor") {
-            Some(Value::String(s)) if !s.is_empty() => s.as_str(),
+            Some(Lite::Str(s)) if !s.is_empty() => s.as_ref(),
             _ => {
                 return Err(ApiError::invalid(
                     at("sensor"),
@@ -188,10 +506,10 @@ pub fn parse_json(body: &[u8], lim: &WindowLimits) -> Result<Window, ApiError> {
                 ));
             }
         };
-        let ts = time_field(o.get("ts").unwrap_or(&Value::Null), &at("ts"))?;
+        let ts = time_of(o.get("ts").unwrap_or(&Lite::Null), &|| at("ts"))?;
         let value = match o.get("value") {
-            Some(Value::Null) => f64::NAN,
-            Some(Value::Number(n)) => match n.as_f64() {
+            Some(Lite::Null) => f64::NAN,
+            Some(Lite::Num(n)) => match n.as_f64() {
                 Some(x) if x.is_finite() => x,
                 _ => {
                     return Err(ApiError::invalid(
@@ -217,7 +535,7 @@ pub fn parse_json(body: &[u8], lim: &WindowLimits) -> Result<Window, ApiError> {
                 ));
             }
         };
-        let good = quality(o.get("quality"), &at("quality"))?;
+        let good = quality(o.get("quality"), &|| at("quality"))?;
         c.push(i, "readings", sensor, ts, value, good)?;
     }
     c.finish(asset, from, to, lim)
@@ -241,7 +559,6 @@ impl Collector {
         value: f64,
         good: bool,
     ) -> Result<(), ApiError> {
-        let at = format!("{list}[{i}].ts");
         let (s, last) = match self.sensors.get_mut(sensor) {
             Some(e) => e,
             None => self
@@ -249,7 +566,10 @@ impl Collector {
                 .entry(sensor.to_owned())
                 .or_insert_with(|| (SensorReadings::default(), i)),
         };
-        if let Some(&prev) = s.ts_ms.last() {
+        if let Some(&prev) = s.ts_ms.last()
+            && ts <= prev
+        {
+            let at = format!("{list}[{i}].ts");
             if ts == prev {
                 return Err(ApiError::invalid(
                     &at,
@@ -259,15 +579,13 @@ impl Collector {
                     ),
                 ));
             }
-            if ts < prev {
-                return Err(ApiError::invalid(
-                    &at,
-                    format!(
-                        "{at}: sensor {sensor:?} goes back in time after {list}[{last}]; send each \
-                         sensor's readings in increasing time"
-                    ),
-                ));
-            }
+            return Err(ApiError::invalid(
+                &at,
+                format!(
+                    "{at}: sensor {sensor:?} goes back in time after {list}[{last}]; send each \
+                     sensor's readings in increasing time"
+                ),
+            ));
         }
         s.ts_ms.push(ts);
         s.value.push(value);
@@ -367,6 +685,40 @@ mod tests {
         // temp's reading is 23:01 the day before, in UTC: the earliest
         assert_eq!(w.from_ms, w.sensors["temp"].ts_ms[0]);
         assert_eq!(w.to_ms, f.ts_ms[1] + 1);
+    }
+
+    #[test]
+    fn escaped_keys_and_strings_and_repeated_keys_read_as_json_says() {
+        // \u escapes make serde hand over owned strings rather than borrowed ones
+        let w = parse_json(
+            br#"{"asset":"p\u0031","asset":"p2","readings":[
+                {"sens\u006fr":"fl\u006fw","ts":"2026-05-06T00:00:00Z","value":1,"value":2.5,
+                 "quality":0},
+                {"sensor":"flow","ts":"2026-05-06T00:01:00Z","value":3,"quality":7}]}"#,
+            &LIM,
+        )
+        .unwrap();
+        // a repeated key keeps its last value, as serde_json's map does
+        assert_eq!(w.asset, "p2");
+        let f = &w.sensors["flow"];
+        assert_eq!((f.value[0], f.good[0], f.good[1]), (2.5, true, false));
+        // the smallest unknown key is the one named, whatever its place
+        assert_eq!(field_of(r#"{"zz":1,"asset":"p1","aa":2,"readings":[]}"#), "aa");
+        // messages quote the input as JSON
+        match parse_json(br#"{"asset":["p\"1"],"readings":[]}"#, &LIM) {
+            Err(ApiError::Invalid { detail, .. }) => {
+                assert_eq!(detail, r#"asset must be a non-empty string, got ["p\"1"]"#);
+            }
+            other => panic!("{other:?}"),
+        }
+        // a reading that is not an object, and JSON that breaks after a bad field: 400 first
+        assert_eq!(field_of(r#"{"asset":"p1","readings":[[1,{"a":2}]]}"#), "readings[0]");
+        match parse_json(br#"{"asset":"p1","readings":[{"x":1}],"#, &LIM) {
+            Err(ApiError::Invalid { status, field, .. }) => {
+                assert_eq!((status.as_u16(), field.as_str()), (400, "body"));
+            }
+            other => panic!("{other:?}"),
+        }
     }
 
     #[test]
