@@ -168,6 +168,18 @@ fn add_key(db: &Path, scope: &str) -> String {
     String::from_utf8(out).unwrap().trim().to_owned()
 }
 
+/// A new database `DIR/t.db` holding one write key; returns its path and the key.
+fn db_with_write_key(dir: &Path) -> (PathBuf, String) {
+    let db = dir.join("t.db");
+    let key = add_key(&db, "write");
+    (db, key)
+}
+
+/// The `id`s of a JSON array of suspicions, in order.
+fn ids_of(items: &Value) -> Vec<String> {
+    items.as_array().unwrap().iter().map(|s| s["id"].as_str().unwrap().to_owned()).collect()
+}
+
 fn ms(s: &str) -> i64 {
     parse_time(s).unwrap().timestamp_millis()
 }
@@ -247,8 +259,7 @@ fn fleet_scan() -> Vec<Suspicion> {
 fn a_window_scored_over_http_gets_the_verdicts_of_the_batch_scan() {
     let f = fixture();
     let dir = tempfile::tempdir().unwrap();
-    let db = dir.path().join("t.db");
-    let key = add_key(&db, "write");
+    let (db, key) = db_with_write_key(dir.path());
     let srv = Server::start(&f.store, &db, &[]);
     // every asset the fleet scan suspects
     let mut assets: Vec<String> = fleet_scan().into_iter().map(|s| s.asset).collect();
@@ -329,8 +340,7 @@ fn a_window_scored_over_http_gets_the_verdicts_of_the_batch_scan() {
 fn every_endpoint_answers_and_feedback_is_idempotent() {
     let f = fixture();
     let dir = tempfile::tempdir().unwrap();
-    let db = dir.path().join("t.db");
-    let write = add_key(&db, "write");
+    let (db, write) = db_with_write_key(dir.path());
     let read = add_key(&db, "read");
     let srv = Server::start(&f.store, &db, &[]);
     let (asset, _, body) = suspect_window();
@@ -459,8 +469,7 @@ fn every_endpoint_answers_and_feedback_is_idempotent() {
 fn keys_are_required_and_scoped() {
     let f = fixture();
     let dir = tempfile::tempdir().unwrap();
-    let db = dir.path().join("t.db");
-    let write = add_key(&db, "write");
+    let (db, write) = db_with_write_key(dir.path());
     let read = add_key(&db, "read");
     let srv = Server::start(&f.store, &db, &[]);
     let score = srv.url("/v1/windows/score");
@@ -522,8 +531,7 @@ fn the_service_refuses_to_start_open_to_the_network_or_without_keys() {
 fn bad_windows_get_problem_documents_naming_the_field() {
     let f = fixture();
     let dir = tempfile::tempdir().unwrap();
-    let db = dir.path().join("t.db");
-    let key = add_key(&db, "write");
+    let (db, key) = db_with_write_key(dir.path());
     let srv = Server::start(&f.store, &db, &["--max-readings", "2000", "--max-body-mib", "1"]);
     let url = srv.url("/v1/windows/score");
     let (asset, h, _) = suspect_window();
@@ -595,18 +603,12 @@ fn bad_windows_get_problem_documents_naming_the_field() {
 fn acknowledged_records_survive_a_kill() {
     let f = fixture();
     let dir = tempfile::tempdir().unwrap();
-    let db = dir.path().join("t.db");
-    let key = add_key(&db, "write");
+    let (db, key) = db_with_write_key(dir.path());
     let (_, _, body) = suspect_window();
     let mut srv = Server::start(&f.store, &db, &[]);
     let scored = post(&srv.url("/v1/windows/score"), Some(&key), &body);
     assert_eq!(scored.status, 200);
-    let ids: Vec<String> = scored.body["suspicions"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|s| s["id"].as_str().unwrap().to_owned())
-        .collect();
+    let ids = ids_of(&scored.body["suspicions"]);
     assert!(!ids.is_empty());
     let fb = json!({"verdict": "process_change_accepted", "note": "new duty pump schedule", "work_order": "WO-77"});
     let r = post(&srv.url(&format!("/v1/suspicions/{}/feedback", ids[0])), Some(&key), &fb);
@@ -635,8 +637,7 @@ fn acknowledged_records_survive_a_kill() {
 fn sigterm_finishes_the_request_in_flight_and_exits_cleanly() {
     let f = fixture();
     let dir = tempfile::tempdir().unwrap();
-    let db = dir.path().join("t.db");
-    let key = add_key(&db, "write");
+    let (db, key) = db_with_write_key(dir.path());
     let (_, _, body) = suspect_window();
     let mut srv = Server::start(&f.store, &db, &[]);
     // a request whose body is half sent when the signal arrives
@@ -722,8 +723,7 @@ fn arrow_stream(h: &AssetHistory, batch: usize, nan_at: Option<usize>) -> Vec<u8
 fn an_arrow_window_scores_like_the_same_json_window() {
     let f = fixture();
     let dir = tempfile::tempdir().unwrap();
-    let db = dir.path().join("t.db");
-    let key = add_key(&db, "write");
+    let (db, key) = db_with_write_key(dir.path());
     let srv = Server::start(&f.store, &db, &[]);
     let (asset, h, body) = suspect_window();
     let k = Some(key.as_str());
@@ -834,8 +834,7 @@ fn webhook_deliveries_are_signed_retried_and_neither_lost_nor_repeated_across_re
     use hmac::{Hmac, Mac};
     let f = fixture();
     let dir = tempfile::tempdir().unwrap();
-    let db = dir.path().join("t.db");
-    let key = add_key(&db, "write");
+    let (db, key) = db_with_write_key(dir.path());
     let secret = "pump-station-7f3a9c-shared";
     let secret_file = dir.path().join("hook.secret");
     std::fs::write(&secret_file, format!("{secret}\n")).unwrap();
@@ -857,12 +856,7 @@ fn webhook_deliveries_are_signed_retried_and_neither_lost_nor_repeated_across_re
     let (_, _, body) = suspect_window();
     let r = post(&srv.url("/v1/windows/score"), Some(&key), &body);
     assert_eq!(r.status, 200);
-    let mut ids: Vec<String> = r.body["suspicions"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .map(|s| s["id"].as_str().unwrap().to_owned())
-        .collect();
+    let mut ids = ids_of(&r.body["suspicions"]);
     ids.sort();
     assert!(!ids.is_empty());
     // killed while the receiver is down: the notifications wait in the outbox
@@ -982,8 +976,7 @@ fn accepting_a_process_change_re_baselines_the_sensor_or_asset_from_its_onset() 
     let f = fixture();
     let dir = tempfile::tempdir().unwrap();
     let store = store_copy(dir.path());
-    let db = dir.path().join("t.db");
-    let key = add_key(&db, "write");
+    let (db, key) = db_with_write_key(dir.path());
     let hist = f.history.to_str().unwrap();
     let srv = Server::start(&store, &db, &["--history", hist, "--rebaseline-retry-s", "1"]);
     let scan = fleet_scan();
@@ -1174,9 +1167,7 @@ fn demo_serve_stores_the_scans_suspicions_and_serves_them() {
     // open on loopback: no key needed; the ranking is the scan's
     let list = get(&format!("{base}/v1/suspicions?limit=500"), None);
     assert_eq!(list.status, 200, "{}", list.text);
-    let ids =
-        |v: &[Value]| v.iter().map(|s| s["id"].as_str().unwrap().to_owned()).collect::<Vec<_>>();
-    assert_eq!(ids(list.body["items"].as_array().unwrap()), ids(&scanned));
+    assert_eq!(ids_of(&list.body["items"]), ids_of(&Value::Array(scanned)));
     let h = get(&format!("{base}/healthz"), None);
     assert_eq!(h.body["open"], true);
     child.kill().unwrap();
