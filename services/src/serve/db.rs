@@ -435,8 +435,13 @@ fn now_text() -> String {
     chrono::Utc::now().to_rfc3339_opts(chrono::SecondsFormat::Millis, true)
 }
 
+/// SHA-256 of `bytes`, lower-case hex.
+pub(crate) fn sha256_hex(bytes: &[u8]) -> String {
+    Sha256::digest(bytes).iter().map(|b| format!("{b:02x}")).collect()
+}
+
 fn hash_key(token: &str) -> String {
-    Sha256::digest(token.as_bytes()).iter().map(|b| format!("{b:02x}")).collect()
+    sha256_hex(token.as_bytes())
 }
 
 fn random_hex(n: usize) -> Result<String, DbError> {

@@ -19,8 +19,7 @@
 //! baselines) and records the file it found as a `fit` version first.
 
 use super::AppState;
-use super::db::{NewVersion, RebaselineRow};
-use sha2::{Digest, Sha256};
+use super::db::{NewVersion, RebaselineRow, sha256_hex};
 use std::path::PathBuf;
 use std::time::Duration;
 use telltale_pipelines::jobs::{RebaselineOutcome, RebaselineRequest, Relearnt, rebaseline};
@@ -48,11 +47,6 @@ impl Default for RebaselineConfig {
             retry: Duration::from_secs(600),
         }
     }
-}
-
-/// SHA-256 of `bytes`, lower-case hex.
-pub(crate) fn sha256_hex(bytes: &[u8]) -> String {
-    Sha256::digest(bytes).iter().map(|b| format!("{b:02x}")).collect()
 }
 
 fn describe(r: &Relearnt, sensor: Option<&str>, from: &str, to: &str) -> String {
