@@ -17,10 +17,11 @@
 use crate::error::{Error, Result};
 use crate::io::{AssetHistory, HistoryReader};
 use crate::jobs::fit::{FitSettings, fit_and_calibrate};
+use crate::jobs::scan::series_of;
 use crate::jobs::store::StoredBaseline;
 use crate::time::{format_time, from_millis};
 use std::path::Path;
-use telltale_models::baseline::{BaselineError, RelearnReport, SensorSeries};
+use telltale_models::baseline::{BaselineError, RelearnReport};
 
 /// One re-baseline to do.
 #[derive(Debug, Clone, PartialEq)]
@@ -63,24 +64,6 @@ pub enum RebaselineOutcome {
     },
     /// Not enough history after the onset yet; the text says how much there is.
     NotYet(String),
-}
-
-/// The series of `history` in the stored baseline's sensor order (an
-/// empty series for a sensor without readings).
-fn series_of<'a>(
-    stored: &StoredBaseline,
-    history: &'a AssetHistory,
-    empty: &'a crate::io::SensorSeries,
-) -> Vec<SensorSeries<'a>> {
-    stored
-        .sensors
-        .iter()
-        .zip(&stored.baseline.sensors)
-        .map(|(st, spec)| {
-            let h = history.sensor(&st.id).unwrap_or(empty);
-            SensorSeries { ts_ms: &h.ts_ms, values: &h.value, good: &h.good, spec: *spec }
-        })
-        .collect()
 }
 
 /// Learns `stored`'s asset again from the onset of an accepted change, from

@@ -126,6 +126,24 @@ struct Evaluated {
     eval: AssetEvaluation,
 }
 
+/// The series of `history` in the stored baseline's sensor order, each
+/// with its sensor's description (`empty` for a sensor without readings).
+pub(crate) fn series_of<'a>(
+    stored: &StoredBaseline,
+    history: &'a AssetHistory,
+    empty: &'a crate::io::SensorSeries,
+) -> Vec<SensorSeries<'a>> {
+    stored
+        .sensors
+        .iter()
+        .zip(&stored.baseline.sensors)
+        .map(|(st, spec)| {
+            let h = history.sensor(&st.id).unwrap_or(empty);
+            SensorSeries { ts_ms: &h.ts_ms, values: &h.value, good: &h.good, spec: *spec }
+        })
+        .collect()
+}
+
 fn evaluate_one(
     s: &ScanSettings,
     origin_ms: i64,
@@ -146,15 +164,7 @@ fn evaluate_one(
         ));
     }
     let empty = crate::io::SensorSeries::default();
-    let series: Vec<SensorSeries<'_>> = stored
-        .sensors
-        .iter()
-        .zip(&b.sensors)
-        .map(|(st, spec)| {
-            let h = history.sensor(&st.id).unwrap_or(&empty);
-            SensorSeries { ts_ms: &h.ts_ms, values: &h.value, good: &h.good, spec: *spec }
-        })
-        .collect();
+    let series = series_of(&stored, history, &empty);
     let frame = align(&series, b.step_ms, Some(origin_ms), Some(end_ms), b.params.reduce())
         .map_err(|e| e.to_string())?;
     let mut eval = evaluate_asset(b, cal, frame.values.view(), frame.origin_ms, &s.params)
